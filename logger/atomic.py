@@ -1,0 +1,54 @@
+"""Crash-safe file writing: a finished file appears whole or not at all."""
+
+from __future__ import annotations
+
+import json
+import os
+import tempfile
+from pathlib import Path
+
+
+def write_bytes_atomic(path: str | os.PathLike, data: bytes) -> None:
+    """Write ``data`` to ``path`` via a temp file in the same folder, fsync, then rename.
+
+    An interrupted call leaves either the old file or the new one, never half of either.
+    """
+    path = Path(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        raise
+    _fsync_dir(path.parent)
+
+
+def write_text_atomic(path: str | os.PathLike, text: str) -> None:
+    """Text version of :func:`write_bytes_atomic` (UTF-8)."""
+    write_bytes_atomic(path, text.encode("utf-8"))
+
+
+def write_json_atomic(path: str | os.PathLike, obj) -> None:
+    """Write ``obj`` as indented JSON, atomically."""
+    write_text_atomic(path, json.dumps(obj, indent=2, sort_keys=False, allow_nan=False) + "\n")
+
+
+def _fsync_dir(folder: Path) -> None:
+    # make the rename itself durable; not every platform lets a folder be opened
+    try:
+        fd = os.open(folder, os.O_RDONLY)
+    except OSError:
+        return
+    try:
+        os.fsync(fd)
+    except OSError:
+        pass
+    finally:
+        os.close(fd)
