@@ -90,6 +90,50 @@ def _resolve(path: Path) -> tuple[Path, Path | None, Path | None]:
     raise InputError(f"{path}: no such file or folder")
 
 
+class _Limited(io.RawIOBase):
+    """A read-only view of the first ``limit`` bytes of a binary file."""
+
+    def __init__(self, fh, limit: int):
+        self._fh, self._left = fh, limit
+
+    def readable(self) -> bool:
+        return True
+
+    def readinto(self, buf) -> int:
+        n = min(len(buf), self._left)
+        if n <= 0:
+            return 0
+        data = self._fh.read(n)
+        buf[: len(data)] = data
+        self._left -= len(data)
+        return len(data)
+
+
+def _inspect(log_path: Path) -> tuple[int, bool, list[str]]:
+    """Size of the whole-line part of the file, whether a partial last line was cut, the header."""
+    try:
+        with open(log_path, "rb") as fh:
+            head = fh.read(65536)
+            fh.seek(0, os.SEEK_END)
+            size = fh.tell()
+            if size == 0:
+                raise InputError(f"{log_path}: empty file (a log needs a header with t_s and freq_hz)")
+            fh.seek(max(0, size - 65536))
+            tail = fh.read()
+    except OSError as exc:
+        raise InputError(f"{log_path}: cannot read ({exc.strerror})") from None
+    interrupted = not tail.endswith(b"\n")
+    if interrupted:
+        cut = tail.rfind(b"\n")
+        size = size - len(tail) + cut + 1 if cut >= 0 else 0
+    first = head.split(b"\n", 1)[0]
+    try:
+        header = [h.strip() for h in first.decode("utf-8-sig").strip().split(",")]
+    except UnicodeDecodeError:
+        raise InputError(f"{log_path}: not a text CSV file") from None
+    return size, interrupted, header
+
+
 def read_log(path: str | os.PathLike, columns: tuple[str, ...] | None = None) -> FrequencyLog:
     """Read a run folder or a log CSV.
 
@@ -113,36 +157,31 @@ def read_log(path: str | os.PathLike, columns: tuple[str, ...] | None = None) ->
             raise InputError(f"{meta_path}: not valid JSON") from None
         if not isinstance(meta, dict):
             raise InputError(f"{meta_path}: expected a JSON object")
-    try:
-        raw = log_path.read_bytes()
-    except OSError as exc:
-        raise InputError(f"{log_path}: cannot read ({exc.strerror})") from None
-    interrupted = False
-    if raw and not raw.endswith(b"\n"):
-        raw = raw[: raw.rfind(b"\n") + 1]  # drop the incomplete last line
-        interrupted = True
+    size, interrupted, header = _inspect(log_path)
     if meta and meta.get("status") not in (None, "complete"):
         interrupted = True
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError:
-        raise InputError(f"{log_path}: not a text CSV file") from None
-    header_line = text.split("\n", 1)[0] if text else ""
-    header = [h.strip() for h in header_line.split(",")]
     missing = [c for c in REQUIRED if c not in header]
     if missing:
         raise InputError(f"{log_path}: no {' or '.join(missing)} column (a log needs t_s and freq_hz)")
     wanted = list(REQUIRED) + [c for c in (columns or NUMERIC + ("flags",)) if c not in REQUIRED]
     use = [c for c in wanted if c in header]
-    dtypes = {c: "float64" for c in use if c in NUMERIC or c in (columns or ())} | (
-        {"flags": "string"} if "flags" in use else {})
+    dtypes = {c: ("category" if c == "flags" else "float64") for c in use if c in NUMERIC or c == "flags"}
     try:
-        table = pd.read_csv(io.StringIO(text), usecols=use, dtype=dtypes, skipinitialspace=True,
-                            keep_default_na=True)
-    except ValueError as exc:
-        raise InputError(f"{log_path}: non-numeric value in a numeric column ({str(exc).splitlines()[0]})") from None
+        with open(log_path, "rb") as fh:
+            # read only whole lines: an interrupted writer may have left half a row at the end
+            table = pd.read_csv(io.BufferedReader(_Limited(fh, size)), usecols=use, dtype=dtypes, skipinitialspace=True,
+                                encoding="utf-8-sig", keep_default_na=True)
+    except pd.errors.EmptyDataError:
+        raise InputError(f"{log_path}: no complete lines in the log") from None
+    except pd.errors.ParserError as exc:
+        raise InputError(f"{log_path}: malformed CSV ({str(exc).splitlines()[0]})") from None
+    except (ValueError, UnicodeDecodeError) as exc:
+        first = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        raise InputError(f"{log_path}: non-numeric or unreadable value in a column ({first})") from None
     if "flags" in table:
-        table["flags"] = _flags.column_from_text(table["flags"].fillna("").to_numpy(object))
+        cats = table["flags"].cat.categories
+        codes = np.array([_flags.from_text(str(c)) for c in cats] + [0], dtype=np.int64)
+        table["flags"] = codes[table["flags"].cat.codes.to_numpy()]  # code -1 (empty) -> last -> 0
     t = table["t_s"].to_numpy(float)
     if len(t) == 0:
         raise InputError(f"{log_path}: the log has no rows")

@@ -72,7 +72,7 @@ def test_usable_mask_excludes_gaps_and_no_tone(tmp_path):
 
 
 @pytest.mark.parametrize("content, why", [
-    ("", "no t_s or freq_hz column"),
+    ("", "empty file"),
     ("time,volts\n0,1\n", "no t_s or freq_hz column"),
     ("t_s,amp\n0,1\n", "no freq_hz column"),
     ("t_s,freq_hz\n", "no rows"),
