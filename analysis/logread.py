@@ -169,7 +169,7 @@ def read_log(path: str | os.PathLike, columns: tuple[str, ...] | None = None) ->
     try:
         with open(log_path, "rb") as fh:
             # read only whole lines: an interrupted writer may have left half a row at the end
-            table = pd.read_csv(io.BufferedReader(_Limited(fh, size)), usecols=use, dtype=dtypes, skipinitialspace=True,
+            table = pd.read_csv(io.BufferedReader(_Limited(fh, size), buffer_size=1 << 20), usecols=use, dtype=dtypes, skipinitialspace=True,
                                 encoding="utf-8-sig", keep_default_na=True)
     except pd.errors.EmptyDataError:
         raise InputError(f"{log_path}: no complete lines in the log") from None
