@@ -1,0 +1,127 @@
+"""Target responses: the oscillator's frequency shift against target distance.
+
+Two kinds:
+
+* parametric on-axis dipole, ``df(d) = A (R^2/(R^2 + d^2))^3``: a small target on the axis of a
+  loop of radius R. The loop's field at the target falls as (a^2/(a^2+z^2))^(3/2) (Biot-Savart on
+  the axis) and, by reciprocity, the coupling back into the coil carries the same factor again, so
+  dL and df/f = -dL/(2L) fall as its square (Wait 1951 for the sphere's dipole moment);
+* physical: the models' :func:`coilshift.analysis.target.predicted_shift_hz` for a material, shape
+  and size in front of a designed coil.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+from scipy.optimize import brentq
+
+from coilshift.logger.errors import InputError
+
+#: classes as the analysis names them: frequency falls / rises / no clear response
+FERROUS, NON_FERROUS, INDETERMINATE = "ferrous", "non-ferrous", "indeterminate"
+#: farthest distance searched for a detection range
+MAX_RANGE_MM = 10_000.0
+
+
+def dipole_shift_hz(distance_mm, peak_shift_hz: float, coil_radius_mm: float) -> np.ndarray:
+    """On-axis dipole response ``A (R^2/(R^2+d^2))^3`` (Hz), signed like ``A``.
+
+    Parameters
+    ----------
+    distance_mm : target distance from the coil plane along the axis
+    peak_shift_hz : A, the shift with the target at the coil's centre (negative: frequency falls)
+    coil_radius_mm : R, the loop's mean radius
+    """
+    d = np.asarray(distance_mm, dtype=float)
+    r2 = coil_radius_mm ** 2
+    return peak_shift_hz * (r2 / (r2 + d * d)) ** 3
+
+
+def dipole_range_mm(threshold_hz: float, peak_shift_hz: float, coil_radius_mm: float) -> float:
+    """Distance at which ``|A| (R^2/(R^2+d^2))^3`` falls to ``threshold_hz`` (closed form); NaN if never reached."""
+    a = abs(peak_shift_hz)
+    if a < threshold_hz:
+        return math.nan
+    return coil_radius_mm * math.sqrt((a / threshold_hz) ** (1.0 / 3.0) - 1.0)
+
+
+@dataclass
+class Response:
+    """One target's shift-vs-distance function, with what it was built from."""
+
+    name: str
+    shift_hz: Callable[[np.ndarray], np.ndarray]  # distance_mm -> oscillator shift, Hz
+    params: dict
+
+    def range_mm(self, threshold_hz: float) -> float:
+        """Largest distance with ``|shift| >= threshold_hz`` (NaN when not even touching)."""
+        if self.params.get("model") == "dipole":
+            return dipole_range_mm(threshold_hz, self.params["peak_shift_hz"], self.params["coil_radius_mm"])
+        g = lambda d: abs(float(self.shift_hz(np.array([d]))[0])) - threshold_hz  # noqa: E731
+        if g(0.0) < 0:
+            return math.nan
+        if g(MAX_RANGE_MM) >= 0:
+            return MAX_RANGE_MM
+        # the response falls monotonically with distance for a target on the axis
+        return float(brentq(g, 0.0, MAX_RANGE_MM, xtol=1e-6))
+
+    def expected_class(self, nearest_mm: float, floor_hz: float) -> str:
+        """The call a sound analysis should make from the nearest scripted step."""
+        s = float(self.shift_hz(np.array([nearest_mm]))[0])
+        if abs(s) <= floor_hz:
+            return INDETERMINATE
+        return FERROUS if s < 0 else NON_FERROUS
+
+
+def build_responses(script) -> dict[str, Response]:
+    """A :class:`Response` for every target of a parsed script."""
+    out = {}
+    for name, t in script.targets.items():
+        if t.spec is None:
+            a, r = t.peak_shift_hz, t.coil_radius_mm
+            out[name] = Response(name, lambda d, a=a, r=r: dipole_shift_hz(d, a, r),
+                                 {"model": "dipole", "peak_shift_hz": a, "coil_radius_mm": r})
+        else:
+            out[name] = _physical(name, t.spec, script.oscillator, script.name)
+    return out
+
+
+def _physical(name: str, spec: dict, osc, where: str) -> Response:
+    w = f"{where}: targets.{name}"
+    try:
+        from coilshift.analysis import coil as coilmod
+        from coilshift.analysis import target as targetmod
+    except ImportError:
+        raise InputError(f"{w}: target models are not available in this installation; "
+                         "use peak_shift_hz and coil_radius_mm") from None
+    try:
+        design = coilmod.CoilDesign(**osc.coil)
+        report = coilmod.analyse_coil(design)
+        tspec = _target_spec(targetmod, spec)
+    except (TypeError, ValueError, KeyError) as exc:
+        raise InputError(f"{w}: {exc}") from None
+    freq = float(osc.freq_hz)
+
+    def shift(d, report=report, tspec=tspec, freq=freq):
+        return np.asarray(targetmod.predicted_shift_hz(report, tspec, np.asarray(d, float), freq), float)
+
+    try:
+        probe = shift(np.array([0.0, 100.0]))
+    except (TypeError, ValueError) as exc:
+        raise InputError(f"{w}: {exc}") from None
+    if probe.shape != (2,) or not np.all(np.isfinite(probe)):
+        raise InputError(f"{w}: the target model gave no finite shift for this target")
+    return Response(name, shift, {"model": "coilshift.analysis.target", "spec": spec,
+                                  "inductance_uh": float(report.inductance_uh), "freq_hz": freq})
+
+
+def _target_spec(targetmod, spec: dict):
+    """Build the models' TargetSpec from the script's keys (same names as the dataclass fields)."""
+    text = spec.get("spec")
+    if isinstance(text, str):
+        return targetmod.parse_target_spec(text)
+    return targetmod.TargetSpec(**spec)
