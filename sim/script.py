@@ -189,7 +189,7 @@ def _recording(c: _Checker, d: dict) -> Recording:
     return Recording(
         sample_rate_hz=c.num(d, "sample_rate_hz", w, 48000.0, lo=1000.0, hi=768000.0),
         encoding=enc, bits=bits,
-        level_dbfs=c.num(d, "level_dbfs", w, -12.0, lo=-120.0, hi=20.0),
+        level_dbfs=c.num(d, "level_dbfs", w, -12.0, lo=-200.0, hi=20.0),
         noise_dbfs=c.num(d, "noise_dbfs", w, -80.0, lo=-200.0, hi=0.0),
         clock_ppm=c.num(d, "clock_ppm", w, 0.0, lo=-2000.0, hi=2000.0),
         anti_alias=aa,
