@@ -180,6 +180,7 @@ def truth_for(p: Plan) -> dict:
             "freq_hz": osc.freq_hz, "prescaler": osc.prescaler, "line_in_freq_hz": osc.freq_hz / osc.prescaler,
             "apparent_freq_hz": base_app, "nyquist_zone": zone, "clock_ppm": rec.clock_ppm,
             "coil": osc.coil,
+            "inductance_uh": _inductance_uh(s),
         },
         "shift_units": "shift_hz is at the oscillator; apparent_shift_hz is what a raw tracker sees in the file",
         "classes_note": "class is the sign of the modelled shift at the nearest scripted distance "
@@ -188,6 +189,14 @@ def truth_for(p: Plan) -> dict:
         "segments": segments,
         "script": s.raw,
     }
+
+
+def _inductance_uh(s: Script):
+    if s.oscillator.coil is None:
+        return None
+    from .script import coil_report
+
+    return float(coil_report(s.oscillator.coil, s.name).inductance_uh)
 
 
 def write_recording(p: Plan, path: str | os.PathLike, block_frames: int = BLOCK_FRAMES) -> None:

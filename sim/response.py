@@ -98,9 +98,8 @@ def _physical(name: str, spec: dict, osc, where: str) -> Response:
     except ImportError:
         raise InputError(f"{w}: target models are not available in this installation; "
                          "use peak_shift_hz and coil_radius_mm") from None
+    report = coilmod.analyse_coil(coilmod.design_from_dict(osc.coil, f"{where}: oscillator.coil"))
     try:
-        design = coilmod.CoilDesign(**osc.coil)
-        report = coilmod.analyse_coil(design)
         tspec = _target_spec(targetmod, spec)
     except (TypeError, ValueError, KeyError) as exc:
         raise InputError(f"{w}: {exc}") from None

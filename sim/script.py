@@ -237,33 +237,24 @@ def _oscillator(c: _Checker, d: dict) -> Oscillator:
 def coil_frequency_hz(coil: dict, where: str) -> float:
     """Operating frequency of an LC oscillator tuned by ``coil['cap_nf']``: 1/(2 pi sqrt(L C)).
 
-    The inductance comes from :func:`coilshift.analysis.coil.analyse_coil` (Wheeler's formulas).
+    The inductance and frequency come from :func:`coilshift.analysis.coil.analyse_coil`
+    (Wheeler's formulas; Thomson's formula for the LC frequency).
     """
+    report = coil_report(coil, where)
+    f = report.lc_freq_hz
+    if f is None or not math.isfinite(f):
+        raise InputError(f"{where}: needs 'cap_nf' (the tuning capacitor, nF) to set the frequency")
+    return float(f)
+
+
+def coil_report(coil: dict, where: str):
+    """The models' :class:`~coilshift.analysis.coil.CoilReport` for a script's coil dict."""
     try:
         from coilshift.analysis import coil as coilmod
     except ImportError:
         raise InputError(f"{where}: coil models are not available in this installation; "
                          "give oscillator.freq_hz instead") from None
-    design = _design(coil, where)
-    report = coilmod.analyse_coil(design)
-    f = getattr(report, "lc_freq_hz", None)
-    if f is None or not math.isfinite(f):
-        cap = coil.get("cap_nf")
-        if not isinstance(cap, (int, float)) or cap <= 0:
-            raise InputError(f"{where}: needs 'cap_nf' (the tuning capacitor, nF) to set the frequency")
-        f = 1.0 / (2 * math.pi * math.sqrt(report.inductance_uh * 1e-6 * cap * 1e-9))
-    return float(f)
-
-
-def _design(coil: dict, where: str):
-    from coilshift.analysis import coil as coilmod
-
-    try:
-        return coilmod.CoilDesign(**coil)
-    except TypeError as exc:
-        raise InputError(f"{where}: {exc}") from None
-    except ValueError as exc:
-        raise InputError(f"{where}: {exc}") from None
+    return coilmod.analyse_coil(coilmod.design_from_dict(coil, where))
 
 
 def _targets(c: _Checker, d: dict) -> dict[str, TargetDef]:
