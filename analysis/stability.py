@@ -6,8 +6,8 @@ terms, equivalent degrees of freedom and chi-squared interval (:mod:`.allan_edf`
 dominant noise type per averaging time -> linear drift, warm-up and temperature coefficient.
 
 Gaps and timing
-    The averaging time tau0 is the median frame spacing. Each frame is placed on the grid
-    step nearest to it; frame times may jitter by up to a quarter of tau0 (their RMS offset
+    Frames are counted off in steps of the median spacing; tau0 and the grid origin are then
+    the least-squares line of frame time on step number. Each frame sits on its step; frame times may jitter by up to a quarter of tau0 (their RMS offset
     is reported) but a log whose times stray further, or put two frames on one step, is
     refused rather than silently resampled. Grid steps without a frame, and frames flagged
     unusable (no tone, out of band, gap), are NaN. The estimators keep only terms whose
@@ -44,7 +44,7 @@ class UniformSeries:
     Attributes
     ----------
     t0_s : time of the first grid step
-    tau0_s : grid spacing (median frame spacing)
+    tau0_s : grid spacing (least-squares fit of frame time on step number)
     freq_hz : frequency per grid step (NaN = gap)
     n_frames : frames in the input
     n_unusable : frames dropped as unusable (flagged or empty frequency)
@@ -76,7 +76,7 @@ class UniformSeries:
 
 
 def to_uniform(t_s, freq_hz, usable=None, source: str = "log") -> UniformSeries:
-    """Place frames on a uniform grid of the median spacing; gaps become NaN.
+    """Place frames on a uniform grid (spacing fitted to the frame times); gaps become NaN.
 
     Parameters
     ----------
@@ -98,12 +98,21 @@ def to_uniform(t_s, freq_hz, usable=None, source: str = "log") -> UniformSeries:
     dt = np.diff(t)
     if not np.all(np.isfinite(t)) or np.any(dt <= 0):
         raise InputError(f"{source}: frame times must be finite and increasing")
-    tau0 = float(np.median(dt))
-    pos = (t - t[0]) / tau0
-    k = np.rint(pos).astype(np.int64)
-    off = pos - k
+    # count grid steps frame to frame with the median spacing (robust to local jitter), then
+    # refine tau0 and the origin by least squares of time on step number, so that a spacing
+    # a little off the median does not accumulate into whole-step errors over a long record
+    step = np.rint(dt / float(np.median(dt))).astype(np.int64)
+    if np.any(step < 1):
+        i = int(np.argmax(step < 1))
+        raise InputError(f"{source}: frame times too uneven for a uniform grid (frames at {t[i]:.6g} and "
+                         f"{t[i + 1]:.6g} s are closer than half the median spacing); resample the log first")
+    k = np.concatenate(([0], np.cumsum(step)))
+    kc = k - k.mean()
+    tau0 = float(np.sum(kc * (t - t.mean())) / np.sum(kc * kc))
+    t_origin = float(t.mean() - tau0 * k.mean())
+    off = (t - t_origin) / tau0 - k
     worst = float(np.max(np.abs(off)))
-    if worst > MAX_JITTER or np.any(np.diff(k) == 0):
+    if worst > MAX_JITTER:
         i = int(np.argmax(np.abs(off)))
         raise InputError(f"{source}: frame times too uneven for a uniform grid (frame at {t[i]:.6g} s is "
                          f"{off[i]:+.2f} steps of {tau0:.6g} s off); resample the log to even spacing first")
@@ -115,7 +124,7 @@ def to_uniform(t_s, freq_hz, usable=None, source: str = "log") -> UniformSeries:
         ok &= np.asarray(usable, bool)
     grid = np.full(n, np.nan)
     grid[k[ok]] = f[ok]
-    return UniformSeries(t0_s=float(t[0]), tau0_s=tau0, freq_hz=grid, n_frames=int(t.size),
+    return UniformSeries(t0_s=t_origin, tau0_s=tau0, freq_hz=grid, n_frames=int(t.size),
                          n_unusable=int((~ok).sum()), n_missing=int(n - t.size),
                          jitter_rms=float(np.sqrt(np.mean(off ** 2))))
 
@@ -235,10 +244,11 @@ class Warmup:
     ----------
     threshold_hz_per_min : |drift rate| counted as settled
     window_s : length of the sliding windows the local rate is fitted over
-    settled : True when the rate stays below the threshold from some window to the end
+    settled : True when the rate stays settled from some window to the end of the log
     warmup_s : time from the start of the log to the centre of the first window from which
         every later window is settled (0 when settled from the start; None when never)
-    t_centre_s, rate_hz_per_min : the local rate per window (for the plot)
+    t_centre_s, rate_hz_per_min, u_rate_hz_per_min : local rate per window and its standard
+        uncertainty (for the plot)
     """
 
     threshold_hz_per_min: float
@@ -247,6 +257,12 @@ class Warmup:
     warmup_s: float | None
     t_centre_s: np.ndarray = field(repr=False)
     rate_hz_per_min: np.ndarray = field(repr=False)
+    u_rate_hz_per_min: np.ndarray = field(repr=False)
+
+
+#: a window counts as unsettled only when its rate exceeds the threshold by this many standard
+#: uncertainties, so noise wander is not mistaken for warm-up drift
+WARMUP_COVERAGE = 2.0
 
 
 def find_warmup(series: UniformSeries, threshold_hz_per_min: float, window_s: float | None = None) -> Warmup:
@@ -254,8 +270,11 @@ def find_warmup(series: UniformSeries, threshold_hz_per_min: float, window_s: fl
 
     The local rate is the least-squares slope over sliding windows (default: 60 s or a fifth
     of the record, whichever is shorter, but at least 10 samples), stepped by a quarter of a
-    window; windows with fewer than half their samples usable are skipped. The slope of a
-    window estimates the rate at its centre, hence the reported time is a window centre.
+    window; windows with fewer than half their samples usable are skipped. A window is
+    unsettled when |rate| - 2 u(rate) > threshold, with u(rate) the AR(1)-aware uncertainty of
+    :func:`fit_line_ar1`: a rate indistinguishable from the threshold within the window's own
+    noise is not held against the oscillator. The slope of a window estimates the rate at its
+    centre, hence the reported time is a window centre.
     """
     tau0 = series.tau0_s
     duration = series.freq_hz.size * tau0
@@ -268,24 +287,25 @@ def find_warmup(series: UniformSeries, threshold_hz_per_min: float, window_s: fl
     f = series.freq_hz
     step = max(w // 4, 1)
     starts = np.arange(0, max(f.size - w, 0) + 1, step)
-    centres, rates = [], []
+    centres, rates, urates = [], [], []
     for s in starts:
-        tt, ff = t[s:s + w], f[s:s + w]
-        ok = np.isfinite(ff)
-        if ok.sum() < max(w // 2, 3):
+        ff = f[s:s + w]
+        if np.isfinite(ff).sum() < max(w // 2, 3):
             continue
-        dx = tt[ok] - tt[ok].mean()
-        rates.append(np.sum(dx * (ff[ok] - ff[ok].mean())) / np.sum(dx * dx) * 60.0)
+        fit = fit_line_ar1(t[s:s + w], ff)
+        rates.append(fit.slope * 60.0)
+        urates.append(fit.u_slope * 60.0)
         centres.append(t[s] + (min(w, f.size - s) - 1) * tau0 / 2)
     centres_a = np.asarray(centres, float)
     rates_a = np.asarray(rates, float)
-    settled_mask = np.abs(rates_a) <= threshold_hz_per_min
+    u_a = np.asarray(urates, float)
+    settled_mask = np.abs(rates_a) - WARMUP_COVERAGE * u_a <= threshold_hz_per_min
     if rates_a.size == 0 or not settled_mask[-1]:
-        return Warmup(threshold_hz_per_min, w * tau0, False, None, centres_a, rates_a)
+        return Warmup(threshold_hz_per_min, w * tau0, False, None, centres_a, rates_a, u_a)
     unsettled = np.flatnonzero(~settled_mask)
     first = 0 if unsettled.size == 0 else int(unsettled[-1]) + 1
     warm = 0.0 if first == 0 else float(centres_a[first] - series.t0_s)
-    return Warmup(threshold_hz_per_min, w * tau0, True, warm, centres_a, rates_a)
+    return Warmup(threshold_hz_per_min, w * tau0, True, warm, centres_a, rates_a, u_a)
 
 
 # ---- temperature --------------------------------------------------------------------------------
@@ -397,6 +417,7 @@ class StabilityResult:
     drift: Drift
     warmup: Warmup
     tempco: TempCo | None = None
+    series: UniformSeries | None = field(default=None, repr=False)  # the gridded input, for plots
 
     def frac(self, name: str) -> np.ndarray:
         """A deviation in Hz as fractional frequency."""
@@ -530,7 +551,8 @@ def analyse_stability(t_s, freq_hz, usable=None, *, nominal_hz: float | None = N
         jitter_rms=series.jitter_rms, detrended=remove_drift, confidence=confidence, m=ms, tau_s=tau,
         adev_hz=a_hz, oadev_hz=o_hz, mdev_hz=md_hz, tdev_s=td_s,
         n_terms={"adev": n_a, "oadev": n_o, "mdev": n_m, "tdev": n_m}, edf=edf, ci_lo=lo, ci_hi=hi,
-        alpha=alpha, noise_type=names, noise_method=methods, drift=drift, warmup=warm, tempco=tempco)
+        alpha=alpha, noise_type=names, noise_method=methods, drift=drift, warmup=warm, tempco=tempco,
+        series=series)
 
 
 # ---- the noise figure for detection thresholds --------------------------------------------------
