@@ -1,8 +1,10 @@
 """Render a script: audio blocks through a modelled soundcard, then the WAV/FLAC, markers and truth.
 
 Timeline: the script's steps run back to back in true time; before every step but the first the
-target is moved for ``move_s`` (raised-cosine transition). Markers cover each step's hold, in the
-file's time (sample index / nominal rate), which is what every later stage sees.
+target is moved for ``move_s`` (raised-cosine transition); the recording runs on for
+:data:`TAIL_S` after the last step. Markers cover each step's hold in true seconds (the session's
+clock, the time axis a clock-corrected track uses); a card clock that is off by ``clock_ppm``
+stretches the file by at most a few milliseconds against them, which the tail absorbs.
 
 The soundcard chain, in order: hum is added at the input, then white noise, then the converter
 clips at full scale and quantises to 16 or 24 bits.
@@ -29,6 +31,8 @@ from .script import Script
 TRUTH_FORMAT = "coilshift-sim-truth"
 TRUTH_VERSION = 1
 BLOCK_FRAMES = 65536
+#: the recording continues this long after the last step, so markers fit either time axis
+TAIL_S = 0.5
 #: full scale of a 16-bit converter read back as float (soundfile divides by 2^15)
 _FULL = {16: 2 ** 15, 24: 2 ** 23}
 
@@ -45,11 +49,6 @@ class Plan:
     responses: dict
     true_rate_hz: float
     n_samples: int
-
-    @property
-    def time_scale(self) -> float:
-        """File time per true second (a fast clock makes more samples per second)."""
-        return 1.0 + self.script.recording.clock_ppm * 1e-6
 
     def osc_freq_hz(self, t_true_s: np.ndarray) -> np.ndarray:
         """Deterministic oscillator frequency (no noise) at true times."""
@@ -76,7 +75,7 @@ def plan(script: Script) -> Plan:
     sched = Schedule(starts, ends, f0, f1, moving, script.hand_hz)
     rec = script.recording
     true_rate = rec.sample_rate_hz * (1.0 + rec.clock_ppm * 1e-6)
-    n = int(round(t * true_rate))
+    n = int(round((t + TAIL_S) * true_rate))
     return Plan(script, sched, np.array(hold_start), np.array(hold_end), np.array(hold_shift),
                 responses, true_rate, n)
 
@@ -123,11 +122,10 @@ def render_array(script: Script, block_frames: int = BLOCK_FRAMES) -> np.ndarray
 
 
 def markers_for(p: Plan) -> list[Marker]:
-    """One marker per step's hold, in file time."""
-    dur = p.n_samples / p.script.recording.sample_rate_hz
+    """One marker per step's hold, in true seconds."""
     out = []
     for st, a, b in zip(p.script.steps, p.step_starts_s, p.step_ends_s):
-        out.append(Marker(a * p.time_scale, min(b * p.time_scale, dur), st.target,
+        out.append(Marker(float(a), float(b), st.target,
                           math.nan if st.target == BASELINE else st.distance_mm))
     return out
 
@@ -150,7 +148,7 @@ def truth_for(p: Plan) -> dict:
         fa, _ = app(mean_f)
         sa, _ = app(osc.freq_hz + shift)
         segments.append({
-            "start_s": a * p.time_scale, "end_s": b * p.time_scale, "target": st.target,
+            "start_s": float(a), "end_s": float(b), "target": st.target,
             "distance_mm": None if st.target == BASELINE else st.distance_mm,
             "shift_hz": float(shift),
             "apparent_shift_hz": sa - base_app,
@@ -176,6 +174,9 @@ def truth_for(p: Plan) -> dict:
         "synthetic": True, "seed": s.seed,
         "sample_rate_hz": fs, "true_sample_rate_hz": p.true_rate_hz,
         "n_samples": p.n_samples, "duration_s": p.n_samples / fs,
+        "true_duration_s": p.n_samples / p.true_rate_hz,
+        "time_note": "segment and marker times are true seconds (the session's clock); the file's "
+                     "own time axis (sample / nominal rate) runs (1 + clock_ppm 1e-6) times longer",
         "oscillator": {
             "freq_hz": osc.freq_hz, "prescaler": osc.prescaler, "line_in_freq_hz": osc.freq_hz / osc.prescaler,
             "apparent_freq_hz": base_app, "nyquist_zone": zone, "clock_ppm": rec.clock_ppm,

@@ -10,7 +10,7 @@ import pytest
 import soundfile as sf
 
 from coilshift.logger.markers import check_within, read_markers
-from coilshift.sim.render import blocks, markers_for, plan, render_array, simulate, truth_for
+from coilshift.sim.render import TAIL_S, blocks, markers_for, plan, render_array, simulate, truth_for
 from coilshift.sim.script import parse_script
 from sim_helpers import script_dict, zero_crossing_freq_hz
 
@@ -77,8 +77,11 @@ def test_clock_ppm_moves_frequency_and_markers(tmp_path):
     # read at the nominal rate every frequency shows divided by 1.0001
     f = zero_crossing_freq_hz(_hold(x, m[0]), FS)
     assert f == pytest.approx(11000.0 / 1.0001, abs=1e-3)
-    assert m[-1].end_s == pytest.approx(s.duration_s * 1.0001, abs=1 / FS)
-    assert len(x) == round(s.duration_s * FS * 1.0001)
+    # markers stay on the session's (true) clock, and fit inside the file on either time axis
+    assert m[-1].end_s == pytest.approx(s.duration_s)
+    assert len(x) == round((s.duration_s + TAIL_S) * FS * 1.0001)
+    check_within(m, len(x) / FS / 1.0001)
+    check_within(m, len(x) / FS)
 
 
 @pytest.mark.parametrize("enc", ["wav", "flac"])
