@@ -100,9 +100,11 @@ def _physical(name: str, spec: dict, osc, where: str) -> Response:
                          "use peak_shift_hz and coil_radius_mm") from None
     report = coilmod.analyse_coil(coilmod.design_from_dict(osc.coil, f"{where}: oscillator.coil"))
     try:
-        tspec = _target_spec(targetmod, spec)
-    except (TypeError, ValueError, KeyError) as exc:
-        raise InputError(f"{w}: {exc}") from None
+        tspec = _target_spec(targetmod, spec, w)
+    except InputError as exc:
+        # the models name the spec text; say which script entry it came from
+        msg = str(exc)
+        raise InputError(msg if msg.startswith(w) else f"{w}: {msg}") from None
     freq = float(osc.freq_hz)
 
     def shift(d, report=report, tspec=tspec, freq=freq):
@@ -115,12 +117,16 @@ def _physical(name: str, spec: dict, osc, where: str) -> Response:
     if probe.shape != (2,) or not np.all(np.isfinite(probe)):
         raise InputError(f"{w}: the target model gave no finite shift for this target")
     return Response(name, shift, {"model": "coilshift.analysis.target", "spec": spec,
+                                  "target": tspec.to_dict(),
                                   "inductance_uh": float(report.inductance_uh), "freq_hz": freq})
 
 
-def _target_spec(targetmod, spec: dict):
-    """Build the models' TargetSpec from the script's keys (same names as the dataclass fields)."""
-    text = spec.get("spec")
-    if isinstance(text, str):
-        return targetmod.parse_target_spec(text)
-    return targetmod.TargetSpec(**spec)
+def _target_spec(targetmod, spec: dict, where: str):
+    """The models' TargetSpec from the script's keys: material, diameter_mm, optional sigma and mu_r."""
+    extra = sorted(set(spec) - {"material", "diameter_mm", "sigma", "mu_r"})
+    if extra:
+        raise InputError(f"{where}: unknown key '{extra[0]}' (allowed: material, diameter_mm, sigma, mu_r)")
+    if not isinstance(spec.get("material"), str):
+        raise InputError(f"{where}: material must be a name, e.g. \"aluminium\"")
+    parts = [f"{k}={spec[k]}" for k in ("diameter_mm", "sigma", "mu_r") if k in spec]
+    return targetmod.parse_target_spec(f"{spec['material']}:{','.join(parts)}")
