@@ -173,7 +173,7 @@ def fit_line_ar1(x, y) -> LineFit:
 
     The residuals of a frequency record are rarely independent (flicker and random-walk FM,
     slow thermal wander), so the textbook standard error is too small. Following Santer et al.
-    (J. Geophys. Res. 105, 7337, 2000) the effective sample size n_eff = n (1 - r1)/(1 + r1)
+    (J. Geophys. Res. 105(D6), 2000) the effective sample size n_eff = n (1 - r1)/(1 + r1)
     from the residuals' lag-1 autocorrelation r1 replaces n in the residual variance,
     s^2 = sum e^2 / (n_eff - 2). A negative r1 is taken as 0 so correlation never shrinks the
     error. This models the residual as first-order autoregressive; for strongly non-stationary

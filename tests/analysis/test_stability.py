@@ -170,7 +170,7 @@ def test_remove_drift_whitens_long_taus():
     raw = analyse_stability(t, f)
     flat = analyse_stability(t, f, remove_drift=True)
     theory = 0.05 / np.sqrt(flat.m)
-    # a linear drift D adds D tau / sqrt(2) to ADEV (SP 1065 section 5.2): huge at long tau
+    # a linear frequency drift D gives sigma_y = D tau / sqrt(2) (SP 1065, from memory): huge at long tau
     assert raw.oadev_hz[-1] > 5 * theory[-1]
     assert np.all((flat.ci_lo["oadev"] / 2 <= theory) & (theory <= 2 * flat.ci_hi["oadev"]))
 
