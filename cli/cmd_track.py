@@ -1,0 +1,84 @@
+"""``coilshift track``: track a recording (WAV/FLAC/... or scope CSV export) into a run folder."""
+
+from __future__ import annotations
+
+import sys
+
+ORDER = 30
+
+
+def register(subparsers) -> None:
+    from coilshift.cli.cmd_capture import add_tracking_options
+
+    p = subparsers.add_parser(
+        "track",
+        help="track a recording or scope export into a run folder (log.csv, run.json)",
+        description="Track the oscillator frequency in a recording and write a run folder: log.csv "
+                    "(t_s, utc, freq_hz, shift_hz, amp_dbfs, snr_db, flags), run.json (source, tracker "
+                    "settings, corrections, baseline and how it was set) and a copy of the markers. "
+                    "Audio files (WAV 8/16/24/32-bit PCM or float, FLAC, AIFF, ...) and oscilloscope CSV "
+                    "exports (a time column and voltage columns; preamble lines are skipped) are streamed, "
+                    "so recordings of any length fit in memory. For a scope export, amp_dbfs is dB re "
+                    "1 V peak. Frequencies given to --band and --near are the oscillator's (after "
+                    "--divide, --nyquist-zone and --clock-ppm). A recording with no tone is refused and "
+                    "nothing is written.",
+    )
+    p.add_argument("input", metavar="INPUT", help="recording: WAV/FLAC/AIFF/OGG file or scope CSV/TXT export")
+    p.add_argument("-o", "--out", required=True, metavar="RUN_DIR", help="run folder to create (new or empty)")
+    p.add_argument("--force", action="store_true", help="replace the run files in an existing folder")
+    p.add_argument("--markers", metavar="CSV",
+                   help="markers CSV (start_s,end_s,target,distance_mm); its baseline rows set the baseline")
+    p.add_argument("--channel", type=int, default=0, metavar="C",
+                   help="channel to track, numbered from 0 (for a scope export: the voltage column, from 0)")
+    add_tracking_options(p)
+    p.add_argument("--json", action="store_true", help="print the summary as one JSON object on stdout")
+    p.add_argument("--quiet", action="store_true", help="no progress bar and no text summary (warnings still shown)")
+    p.set_defaults(func=run)
+
+
+def warn(lines) -> None:
+    """Warnings go to stderr, one line each."""
+    for line in lines:
+        print(f"coilshift: {line}", file=sys.stderr)
+
+
+def run(args) -> int:
+    from coilshift.cli.cmd_capture import tracking_from_args
+    from coilshift.cli.common import print_json
+    from coilshift.logger.errors import InputError
+    from coilshift.logger.pipeline import track_source
+    from coilshift.logger.progress import make_progress
+    from coilshift.logger.sources import open_source
+
+    if args.channel < 0:
+        raise InputError(f"--channel {args.channel}: channels are numbered from 0")
+    source = open_source(args.input, channel=args.channel)
+    settings, corrections = tracking_from_args(args, source.sample_rate_hz)
+    early = corrections.warnings()
+    warn(early)  # the inverted-sign warning comes before the work, not buried after it
+    with make_progress("tracking", quiet=args.quiet) as bar:
+        summary = track_source(source, settings, corrections, args.out, markers=args.markers,
+                               baseline_s=args.baseline_s, force=args.force, progress=bar)
+    warn(w for w in summary["warnings"] if w not in early)
+    if args.json:
+        print_json(summary)
+    elif not args.quiet:
+        print(human_summary(summary, args.input))
+    return 0
+
+
+def human_summary(s: dict, input_name: str) -> str:
+    counts = ", ".join(f"{k} {v}" for k, v in s["flag_counts"].items()) or "none"
+    rate = f"{s['sample_rate_hz']:g} Hz"
+    if s["sample_rate_true_hz"] != s["sample_rate_hz"]:
+        rate += f" (true {s['sample_rate_true_hz']:.3f} Hz)"
+    how = s["baseline_method"]
+    if s.get("baseline_window_s") is not None:
+        how = f"median of the first {s['baseline_window_s']:g} s"
+    return "\n".join([
+        f"tracked {input_name} -> {s['run_dir']}",
+        f"  {s['frames']} frames ({s['tone_frames']} with a tone) over {s['duration_s']:.3f} s at {rate}",
+        f"  baseline {s['baseline_hz']:.4f} Hz ({how})",
+        f"  median {s['freq_median_hz']:.4f} Hz; shift {s['shift_min_hz']:+.4f} .. {s['shift_max_hz']:+.4f} Hz",
+        f"  flags: {counts}",
+    ])
