@@ -64,6 +64,44 @@ def _check_m(m_list) -> np.ndarray:
     return m
 
 
+def _deviation(y, m_list, span, terms) -> tuple[np.ndarray, np.ndarray]:
+    """Shared driver: ``terms(window_sums, m)`` gives (term values, gap-free mask, normaliser);
+    the deviation is sqrt(sum of squared gap-free terms / (normaliser * count)). Factors whose
+    ``span(m)`` exceeds the record get no term."""
+    ws = _WindowSums(_prepare(y))
+    ms = _check_m(m_list)
+    dev = np.full(ms.shape, np.nan)
+    n_terms = np.zeros(ms.shape, dtype=np.int64)
+    for k, m in enumerate(ms):
+        if span(int(m)) > ws.n:
+            continue
+        d, good, norm = terms(ws, int(m))
+        n = int(good.sum())
+        n_terms[k] = n
+        if n:
+            dev[k] = np.sqrt(np.sum(d[good] ** 2) / (norm * n))
+    return dev, n_terms
+
+
+def _adev_terms(ws: _WindowSums, m: int):
+    s, ok = ws.sums(m)
+    s, ok = s[::m], ok[::m]  # the non-overlapping blocks start at 0, m, 2m, ...
+    return s[1:] - s[:-1], ok[1:] & ok[:-1], 2.0 * m * m
+
+
+def _oadev_terms(ws: _WindowSums, m: int):
+    s, ok = ws.sums(m)
+    return s[m:] - s[:-m], ok[m:] & ok[:-m], 2.0 * m * m
+
+
+def _mdev_terms(ws: _WindowSums, m: int):
+    d, ok, _ = _oadev_terms(ws, m)
+    bad = ~ok
+    cd = np.concatenate(([0.0], np.cumsum(np.where(bad, 0.0, d))))
+    cb = np.concatenate(([0], np.cumsum(bad, dtype=np.int64)))
+    return cd[m:] - cd[:-m], (cb[m:] - cb[:-m]) == 0, 2.0 * float(m) ** 4
+
+
 def adev(y, m_list) -> tuple[np.ndarray, np.ndarray]:
     """Non-overlapping Allan deviation of frequency data.
 
@@ -80,23 +118,7 @@ def adev(y, m_list) -> tuple[np.ndarray, np.ndarray]:
     dev : deviation per factor, same unit as ``y`` (NaN where no term survives)
     n_terms : number of differences used per factor
     """
-    y = _prepare(y)
-    ws = _WindowSums(y)
-    ms = _check_m(m_list)
-    dev = np.full(ms.shape, np.nan)
-    n_terms = np.zeros(ms.shape, dtype=np.int64)
-    for k, m in enumerate(ms):
-        if 2 * m > ws.n:
-            continue
-        s, ok = ws.sums(int(m))
-        s, ok = s[::m], ok[::m]  # the non-overlapping blocks start at 0, m, 2m, ...
-        d = s[1:] - s[:-1]
-        good = ok[1:] & ok[:-1]
-        n = int(good.sum())
-        n_terms[k] = n
-        if n:
-            dev[k] = np.sqrt(np.sum(d[good] ** 2) / (2.0 * m * m * n))
-    return dev, n_terms
+    return _deviation(y, m_list, lambda m: 2 * m, _adev_terms)
 
 
 def oadev(y, m_list) -> tuple[np.ndarray, np.ndarray]:
@@ -107,22 +129,7 @@ def oadev(y, m_list) -> tuple[np.ndarray, np.ndarray]:
 
     Parameters and returns as :func:`adev`.
     """
-    y = _prepare(y)
-    ws = _WindowSums(y)
-    ms = _check_m(m_list)
-    dev = np.full(ms.shape, np.nan)
-    n_terms = np.zeros(ms.shape, dtype=np.int64)
-    for k, m in enumerate(ms):
-        if 2 * m > ws.n:
-            continue
-        s, ok = ws.sums(int(m))
-        d = s[m:] - s[:-m]
-        good = ok[m:] & ok[:-m]
-        n = int(good.sum())
-        n_terms[k] = n
-        if n:
-            dev[k] = np.sqrt(np.sum(d[good] ** 2) / (2.0 * m * m * n))
-    return dev, n_terms
+    return _deviation(y, m_list, lambda m: 2 * m, _oadev_terms)
 
 
 def mdev(y, m_list) -> tuple[np.ndarray, np.ndarray]:
@@ -134,27 +141,7 @@ def mdev(y, m_list) -> tuple[np.ndarray, np.ndarray]:
 
     Parameters and returns as :func:`adev`.
     """
-    y = _prepare(y)
-    ws = _WindowSums(y)
-    ms = _check_m(m_list)
-    dev = np.full(ms.shape, np.nan)
-    n_terms = np.zeros(ms.shape, dtype=np.int64)
-    for k, m in enumerate(ms):
-        if 3 * m - 1 > ws.n:
-            continue
-        s, ok = ws.sums(int(m))
-        d = s[m:] - s[:-m]
-        bad = ~(ok[m:] & ok[:-m])
-        d = np.where(bad, 0.0, d)
-        cd = np.concatenate(([0.0], np.cumsum(d)))
-        cb = np.concatenate(([0], np.cumsum(bad, dtype=np.int64)))
-        inner = cd[m:] - cd[:-m]
-        good = (cb[m:] - cb[:-m]) == 0
-        n = int(good.sum())
-        n_terms[k] = n
-        if n:
-            dev[k] = np.sqrt(np.sum(inner[good] ** 2) / (2.0 * float(m) ** 4 * n))
-    return dev, n_terms
+    return _deviation(y, m_list, lambda m: 3 * m - 1, _mdev_terms)
 
 
 def tdev(y, m_list, tau0_s: float) -> tuple[np.ndarray, np.ndarray]:

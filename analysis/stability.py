@@ -487,7 +487,7 @@ def analyse_stability(t_s, freq_hz, usable=None, *, nominal_hz: float | None = N
                       remove_drift: bool = False, confidence: float = DEFAULT_CONFIDENCE,
                       settle_hz_per_min: float | None = None, window_s: float | None = None,
                       temperature: tuple[np.ndarray, np.ndarray] | None = None,
-                      source: str = "log") -> StabilityResult:
+                      source: str = "log", temperature_source: str = "temperature") -> StabilityResult:
     """Allan, overlapping Allan, modified Allan and time deviation with intervals, drift, warm-up.
 
     Parameters
@@ -501,7 +501,7 @@ def analyse_stability(t_s, freq_hz, usable=None, *, nominal_hz: float | None = N
     settle_hz_per_min : warm-up threshold (default 1 ppm of nominal per minute)
     window_s : warm-up window (default min(60 s, record/5))
     temperature : (time_s, temp_c) arrays for the temperature coefficient
-    source : name for error messages
+    source, temperature_source : names of the log and the temperature record for error messages
 
     Raises
     ------
@@ -543,7 +543,7 @@ def analyse_stability(t_s, freq_hz, usable=None, *, nominal_hz: float | None = N
     warm = find_warmup(series, settle_hz_per_min, window_s)
     tempco = None
     if temperature is not None:
-        tempco = temperature_coefficient(series, temperature[0], temperature[1], nominal)
+        tempco = temperature_coefficient(series, temperature[0], temperature[1], nominal, temperature_source)
     return StabilityResult(
         source=source, tau0_s=series.tau0_s, duration_s=series.freq_hz.size * series.tau0_s,
         nominal_hz=nominal, mean_hz=mean_hz, n_frames=series.n_frames, n_used=series.n_used,

@@ -124,7 +124,8 @@ def run(args: argparse.Namespace) -> int:
     res = analyse_stability(log.t_s, log.freq_hz, log.usable(), nominal_hz=args.nominal_hz,
                             remove_drift=args.remove_drift, confidence=args.confidence,
                             settle_hz_per_min=args.settle, window_s=args.window,
-                            temperature=temperature, source=str(args.log))
+                            temperature=temperature, source=str(args.log),
+                            temperature_source=str(args.temperature))
     summary = res.to_dict()
     if log.interrupted:
         summary["log_interrupted"] = True
