@@ -102,9 +102,28 @@ def design_two_resistor(freq_hz: float, cap_nf: float, duty: float = 0.6,
                          f"circuit (use the one-resistor circuit for 50 %)")
     total = 1.0 / (LN2 * freq_hz * cap_nf * 1e-9)
     r1, r2 = (2.0 * duty - 1.0) * total, (1.0 - duty) * total
-    if series:
-        r1, r2 = nearest_standard(r1, series), nearest_standard(r2, series)
-    return astable_two_resistor(r1, r2, cap_nf)
+    if not series:
+        return astable_two_resistor(r1, r2, cap_nf)
+    # try the standard values around each ideal resistor; keep the pair closest in frequency,
+    # the duty cycle breaking near-ties
+    best = None
+    for c1 in _neighbours(r1, series):
+        for c2 in _neighbours(r2, series):
+            t = astable_two_resistor(c1, c2, cap_nf)
+            cost = abs(math.log(t.freq_hz / freq_hz)) + 0.1 * abs(t.duty - duty)
+            if best is None or cost < best[0]:
+                best = (cost, t)
+    return best[1]
+
+
+def _neighbours(value: float, series: str) -> list[float]:
+    """The standard values just below and above ``value`` (and the nearest), at most three."""
+    near = nearest_standard(value, series)
+    mantissas = E_SERIES[series.upper()]
+    decade = math.floor(math.log10(near))
+    ladder = sorted(m * 10.0 ** (decade + s) for s in (-1, 0, 1) for m in mantissas)
+    i = min(range(len(ladder)), key=lambda j: abs(ladder[j] - near))
+    return ladder[max(i - 1, 0):i + 2]
 
 
 def design_one_resistor(freq_hz: float, cap_nf: float, series: str | None = "E24") -> AstableTiming:

@@ -9,7 +9,7 @@ Sources
   0.00393 /degC at 20 degC.
 - IEC 60889 (hard-drawn aluminium for overhead conductors): 0.028264 ohm mm^2/m at 20 degC,
   0.00403 /degC.
-- Enamel build of magnet wire: an APPROXIMATE power-law fit (build_mm = c * d_mm ** 0.6) to the
+- Enamel build of magnet wire: an APPROXIMATE power-law fit (build_mm = c * d_mm ** 0.575) to the
   maximum overall diameters of IEC 60317-0-1 grade 1 and grade 2 round enamelled wire, recalled
   from memory; good to a few micrometres between 0.1 and 1.5 mm. Use the supplier's datasheet
   (or ``outer_diameter_mm``) when the winding is tight.
@@ -30,8 +30,9 @@ CONDUCTORS = {
     "aluminium": (0.028264, 0.00403),
 }
 
-# Enamel build (increase of diameter) c * d**0.6, approximate (see module docstring)
-INSULATION_BUILD_COEF = {"none": 0.0, "grade1": 0.062, "grade2": 0.09}
+# Enamel build (increase of diameter) c * d**0.575, approximate (see module docstring)
+INSULATION_BUILD_COEF = {"none": 0.0, "grade1": 0.066, "grade2": 0.095}
+INSULATION_BUILD_EXPONENT = 0.575
 
 _AWG_WORDS = {"0000": -3, "4/0": -3, "000": -2, "3/0": -2, "00": -1, "2/0": -1, "0": 0, "1/0": 0}
 
@@ -65,7 +66,7 @@ def awg_diameter_mm(awg) -> float:
 def insulation_build_mm(bare_diameter_mm: float, grade: str = "grade1") -> float:
     """Approximate increase of diameter from the enamel coat of magnet wire, in mm.
 
-    An approximate fit (c * d ** 0.6, c = 0.062 mm^0.4 for grade 1, 0.09 for grade 2) to the
+    An approximate fit (c * d ** 0.575, c = 0.066 for grade 1, 0.095 for grade 2) to the
     maximum overall diameters of IEC 60317-0-1, recalled from memory; ``"none"`` for bare or
     litz-free estimates. Check the supplier's datasheet for tight windings.
     """
@@ -73,7 +74,7 @@ def insulation_build_mm(bare_diameter_mm: float, grade: str = "grade1") -> float
         coef = INSULATION_BUILD_COEF[grade]
     except KeyError:
         raise InputError(f"insulation {grade!r}: use one of {', '.join(INSULATION_BUILD_COEF)}") from None
-    return coef * bare_diameter_mm ** 0.6
+    return coef * bare_diameter_mm ** INSULATION_BUILD_EXPONENT
 
 
 def resistivity_ohm_m(temp_c: float = 20.0, conductor: str = "copper") -> float:

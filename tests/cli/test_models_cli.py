@@ -1,0 +1,110 @@
+"""``coil``, ``target`` and ``astable`` commands: JSON keys, coil files, one-line refusals."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+
+import pytest
+
+from coilshift.cli import main as cli_main
+
+LOOP = ["--turns", "20", "--inner-diameter-mm", "200", "--length-mm", "5", "--depth-mm", "5", "--awg", "22",
+        "--cap-nf", "100"]
+
+
+def run_main(capsys, *args):
+    code = cli_main.main(list(args))
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def test_coil_json_keys(capsys):
+    code, out, err = run_main(capsys, "coil", *LOOP, "--json")
+    assert code == 0 and err == ""
+    obj = json.loads(out)
+    for key in ("inductance_uh", "resistance_ohm", "wire_length_m", "method", "accuracy_note", "mean_radius_mm",
+                "exact_inductance_uh", "self_capacitance_pf", "srf_hz", "lc_freq_hz"):
+        assert key in obj
+    assert obj["inductance_uh"] > 0 and obj["lc_freq_hz"] > 0
+
+
+def test_coil_text_and_tuning(capsys):
+    code, out, _ = run_main(capsys, "coil", "--turns", "30", "--inner-diameter-mm", "25", "--length-mm", "30",
+                            "--awg", "24", "--for-freq-hz", "100000")
+    assert code == 0
+    assert "current sheet" in out and "tuning capacitor" in out and "Medhurst" in out
+
+
+def test_coil_from_file_with_override(tmp_path, capsys):
+    path = tmp_path / "coil.json"
+    path.write_text(json.dumps({"turns": 200, "inner_diameter_mm": 50, "length_mm": 10, "depth_mm": 5,
+                                "awg": 26, "cap_nf": 100}))
+    code, out, _ = run_main(capsys, "coil", "--coil", str(path), "--json")
+    base = json.loads(out)
+    code2, out2, _ = run_main(capsys, "coil", "--coil", str(path), "--cap-nf", "25", "--json")
+    assert code == code2 == 0
+    # a quarter of the capacitance doubles the LC frequency
+    assert json.loads(out2)["lc_freq_hz"] == pytest.approx(2 * base["lc_freq_hz"], rel=1e-9)
+    assert path.read_text().startswith("{")   # the file is only read
+
+
+def test_target_json(capsys):
+    code, out, err = run_main(capsys, "target", *LOOP, "--target", "steel:diameter_mm=12",
+                              "--distances-mm", "10", "50", "--threshold-hz", "0.5", "--json")
+    assert code == 0 and err == ""
+    obj = json.loads(out)
+    assert obj["distance_mm"] == [10.0, 50.0]
+    assert all(s < 0 for s in obj["shift_hz"])
+    assert obj["range_mm"] > 0 and obj["range_closed_form_mm"] > 0
+    assert obj["target"]["name"] == "mild_steel"
+
+
+def test_target_with_material_options(capsys):
+    code, out, _ = run_main(capsys, "target", *LOOP, "--material", "copper", "--diameter-mm", "20",
+                            "--threshold-hz", "1")
+    assert code == 0 and "rises" in out and "range" in out and "buried services" in out
+    code, out, _ = run_main(capsys, "target", *LOOP, "--conductivity-s-per-m", "1e6", "--mu-r", "1",
+                            "--diameter-mm", "20", "--json")
+    assert code == 0 and json.loads(out)["target"]["conductivity_s_per_m"] == 1e6
+
+
+def test_astable_json(capsys):
+    code, out, _ = run_main(capsys, "astable", "--r1-ohm", "3900", "--r2-ohm", "3000", "--cap-nf", "10", "--json")
+    assert code == 0
+    obj = json.loads(out)
+    assert obj["freq_hz"] == pytest.approx(14572.7, abs=0.1) and obj["duty"] == pytest.approx(0.697, abs=1e-3)
+    code, out, _ = run_main(capsys, "astable", "--freq-hz", "10000")
+    assert code == 0 and "wanted 10000 Hz" in out
+
+
+@pytest.mark.parametrize("args", [
+    ["coil", "--turns", "-5", "--inner-diameter-mm", "50", "--length-mm", "10"],
+    ["coil", "--turns", "50", "--inner-diameter-mm", "0", "--length-mm", "10"],
+    ["coil", "--turns", "50", "--inner-diameter-mm", "20", "--length-mm", "10", "--depth-mm", "0.1", "--awg", "26"],
+    ["coil", "--turns", "50", "--inner-diameter-mm", "20", "--length-mm", "10", "--depth-mm", "-2"],
+    ["coil", "--turns", "500", "--inner-diameter-mm", "20", "--length-mm", "10", "--awg", "26"],
+    ["coil", "--turns", "50", "--inner-diameter-mm", "20", "--length-mm", "10", "--awg", "99"],
+    ["coil", "--inner-diameter-mm", "20"],
+    ["coil", "--coil", "/nonexistent/coil.json"],
+    ["target", *LOOP, "--target", "unobtainium:diameter_mm=3"],
+    ["target", *LOOP, "--material", "copper"],
+    ["target", "--turns", "10", "--inner-diameter-mm", "100", "--length-mm", "1", "--target", "cu:diameter_mm=5"],
+    ["target", *LOOP, "--target", "cu:diameter_mm=5", "--threshold-hz", "0"],
+    ["astable", "--freq-hz", "1000", "--duty", "0.4"],
+    ["astable", "--r1-ohm", "1000"],
+])
+def test_refusals_are_one_line(args, capsys):
+    code, out, err = run_main(capsys, *args)
+    assert code != 0 and out == ""
+    assert err.count("\n") == 1 and err.startswith("coilshift: error:")
+
+
+def test_bad_coil_file_named_in_the_message(tmp_path):
+    path = tmp_path / "bad.json"
+    path.write_text('{"turns": 10, "inner_diameter_mm": 50, "length_mm": 10, "wire": "thin"}')
+    r = subprocess.run([sys.executable, "-m", "coilshift.cli.main", "coil", "--coil", str(path)],
+                       capture_output=True, text=True, timeout=120)
+    assert r.returncode != 0 and str(path) in r.stderr and "unknown key" in r.stderr
+    assert r.stderr.count("\n") == 1 and "Traceback" not in r.stderr
