@@ -43,16 +43,23 @@ def plot_sigma_tau(result: StabilityResult, path: str | os.PathLike) -> None:
         ax.errorbar(tau[ok], dev[ok], yerr=yerr[:, ok], fmt=marker + "-", color=color, ms=5,
                     capsize=3, lw=1.2, label=label)
     o = result.oadev_hz
-    ok = np.flatnonzero(np.isfinite(o) & (o > 0))
+    ok = np.flatnonzero(np.isfinite(o) & (o > 0) & ~result.within_frame())
     if ok.size:
-        # one-decade reference segments meeting at the overlapping-ADEV floor: falling slopes
-        # arrive from the left, rising ones leave to the right
+        # reference segments through the overlapping-ADEV floor, up to a decade long and kept
+        # inside the measured tau range: falling slopes on the left of it, rising on the right
         i_min = ok[np.argmin(o[ok])]
         t_ref, s_ref = tau[i_min], o[i_min]
+        t_lo, t_hi = max(t_ref / 10, tau[ok[0]]), min(t_ref * 10, tau[ok[-1]])
         for (name, slope), ls in zip(_REFERENCE_SLOPES, (":", "--", "-.", (0, (1, 3)), (0, (5, 2, 1, 2)))):
-            tt = np.array([t_ref / 10, t_ref]) if slope < 0 else np.array([t_ref, t_ref * 10])
+            left = slope < 0 if t_lo < t_ref and t_hi > t_ref else t_lo < t_ref
+            tt = np.array([t_lo, t_ref]) if left else np.array([t_ref, t_hi])
+            if tt[0] == tt[1]:
+                continue
             ax.plot(tt, s_ref * (tt / t_ref) ** slope, color="dimgrey", ls=ls, lw=1.0,
                     label=f"slope {slope:+.1f}: {name}")
+    if result.frame_s is not None and tau.size and tau[0] < result.frame_s:
+        ax.axvspan(tau[0] / 1.2, result.frame_s, color="0.85", alpha=0.5, lw=0,
+                   label=f"tau < tracker frame ({1000 * result.frame_s:.4g} ms)")
     ax.set_xscale("log")
     ax.set_yscale("log")
     ax.set_xlabel("averaging time tau (s)")

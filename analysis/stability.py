@@ -417,7 +417,15 @@ class StabilityResult:
     drift: Drift
     warmup: Warmup
     tempco: TempCo | None = None
+    frame_s: float | None = None
     series: UniformSeries | None = field(default=None, repr=False)  # the gridded input, for plots
+
+    def within_frame(self) -> np.ndarray:
+        """True where tau is shorter than the tracker's frame: overlapping frames share samples,
+        so there the curve shows the tracker's own smoothing rather than the oscillator."""
+        if self.frame_s is None:
+            return np.zeros(self.tau_s.shape, bool)
+        return self.tau_s < self.frame_s * (1 - 1e-9)
 
     def frac(self, name: str) -> np.ndarray:
         """A deviation in Hz as fractional frequency."""
@@ -443,6 +451,8 @@ class StabilityResult:
             d[f"{k}_edf"] = self.edf[k]
             d[f"{k}_lo_{unit}"] = self.ci_lo[k]
             d[f"{k}_hi_{unit}"] = self.ci_hi[k]
+        d["tracker_frame_s"] = self.frame_s
+        d["within_frame"] = self.within_frame()
         d["noise_alpha"] = self.alpha
         d["noise_type"] = self.noise_type
         d["noise_method"] = self.noise_method
@@ -487,7 +497,8 @@ def analyse_stability(t_s, freq_hz, usable=None, *, nominal_hz: float | None = N
                       remove_drift: bool = False, confidence: float = DEFAULT_CONFIDENCE,
                       settle_hz_per_min: float | None = None, window_s: float | None = None,
                       temperature: tuple[np.ndarray, np.ndarray] | None = None,
-                      source: str = "log", temperature_source: str = "temperature") -> StabilityResult:
+                      source: str = "log", temperature_source: str = "temperature",
+                      frame_s: float | None = None) -> StabilityResult:
     """Allan, overlapping Allan, modified Allan and time deviation with intervals, drift, warm-up.
 
     Parameters
@@ -502,6 +513,8 @@ def analyse_stability(t_s, freq_hz, usable=None, *, nominal_hz: float | None = N
     window_s : warm-up window (default min(60 s, record/5))
     temperature : (time_s, temp_c) arrays for the temperature coefficient
     source, temperature_source : names of the log and the temperature record for error messages
+    frame_s : the tracker's analysis frame length, when known (run.json), to mark the averaging
+        times shorter than one frame
 
     Raises
     ------
@@ -552,7 +565,7 @@ def analyse_stability(t_s, freq_hz, usable=None, *, nominal_hz: float | None = N
         adev_hz=a_hz, oadev_hz=o_hz, mdev_hz=md_hz, tdev_s=td_s,
         n_terms={"adev": n_a, "oadev": n_o, "mdev": n_m, "tdev": n_m}, edf=edf, ci_lo=lo, ci_hi=hi,
         alpha=alpha, noise_type=names, noise_method=methods, drift=drift, warmup=warm, tempco=tempco,
-        series=series)
+        frame_s=frame_s, series=series)
 
 
 # ---- the noise figure for detection thresholds --------------------------------------------------

@@ -54,11 +54,16 @@ def _table_text(res) -> str:
     head = (f"{'tau_s':>10} {'ADEV_Hz':>11} {'OADEV_Hz':>11} {'OADEV interval Hz':>25} "
             f"{'MDEV_Hz':>11} {'TDEV_s':>11} {'OADEV_y':>10} {'terms':>7}  noise")
     lines.append(head)
+    inside = res.within_frame()
     for i, tau in enumerate(res.tau_s):
+        mark = "*" if inside[i] else " "
         ci = f"{res.ci_lo['oadev'][i]:.4g} .. {res.ci_hi['oadev'][i]:.4g}"
-        lines.append(f"{tau:>10.4g} {res.adev_hz[i]:>11.4g} {res.oadev_hz[i]:>11.4g} {ci:>25} "
+        lines.append(f"{tau:>9.4g}{mark} {res.adev_hz[i]:>11.4g} {res.oadev_hz[i]:>11.4g} {ci:>25} "
                      f"{res.mdev_hz[i]:>11.4g} {res.tdev_s[i]:>11.4g} {res.oadev_hz[i] / res.nominal_hz:>10.3g} "
                      f"{res.n_terms['oadev'][i]:>7d}  {res.noise_type[i]}")
+    if inside.any():
+        lines.append(f"* shorter than the tracker frame ({1000 * res.frame_s:.4g} ms): overlapping frames "
+                     "share samples, so these rows show the tracker's smoothing, not the oscillator")
     lines.append("")
     lines.append(f"drift {d.rate_hz_per_min:+.5g} ± {d.u_rate_hz_per_min:.2g} Hz/min (1 sigma, residuals "
                  f"treated as AR(1): lag-1 r = {d.residual_lag1:.2f}, n_eff = {d.n_eff:.0f}; "
@@ -68,9 +73,13 @@ def _table_text(res) -> str:
     if w.settled:
         lines.append(f"warm-up: drift rate below {w.threshold_hz_per_min:.3g} Hz/min "
                      f"({w.window_s:.3g} s windows) from {w.warmup_s:.4g} s after start")
-    else:
+    elif w.rate_hz_per_min.size:
         lines.append(f"warm-up: drift rate never stayed below {w.threshold_hz_per_min:.3g} Hz/min "
-                     f"({w.window_s:.3g} s windows) through the end of the log")
+                     f"({w.window_s:.3g} s windows); the last window still drifts "
+                     f"{w.rate_hz_per_min[-1]:+.3g} ± {w.u_rate_hz_per_min[-1]:.2g} Hz/min (set --settle to judge "
+                     "against your own limit)")
+    else:
+        lines.append("warm-up: no window had enough usable frames to judge")
     if res.tempco is not None:
         tc = res.tempco
         lines.append(f"temperature coefficient {tc.hz_per_degc:+.5g} ± {tc.u_hz_per_degc:.2g} Hz/degC "
@@ -96,6 +105,7 @@ def _csv_text(res) -> str:
         cols[f"{k}_n_terms"] = res.n_terms[k]
     for k in ("adev", "oadev", "mdev"):
         cols[f"{k}_frac"] = res.frac(k)
+    cols["within_frame"] = res.within_frame()
     cols["noise_alpha"] = res.alpha
     cols["noise_type"] = res.noise_type
     cols["noise_method"] = res.noise_method
@@ -120,12 +130,15 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(f"--window: must be positive, got {args.window}")
     log = read_log(args.log)
     temperature = read_temperature_csv(args.temperature) if args.temperature else None
+    tracker = log.meta.get("tracker") if isinstance(log.meta.get("tracker"), dict) else {}
+    frame_ms = tracker.get("frame_ms")
+    frame_s = float(frame_ms) / 1000.0 if isinstance(frame_ms, (int, float)) and frame_ms > 0 else None
     # everything that can fail on the input runs before any output exists
     res = analyse_stability(log.t_s, log.freq_hz, log.usable(), nominal_hz=args.nominal_hz,
                             remove_drift=args.remove_drift, confidence=args.confidence,
                             settle_hz_per_min=args.settle, window_s=args.window,
                             temperature=temperature, source=str(args.log),
-                            temperature_source=str(args.temperature))
+                            temperature_source=str(args.temperature), frame_s=frame_s)
     summary = res.to_dict()
     if log.interrupted:
         summary["log_interrupted"] = True

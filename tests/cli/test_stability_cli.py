@@ -27,7 +27,8 @@ def _frames(n=3000, tau0=0.02, seed=0):
 @pytest.fixture
 def run_dir(tmp_path):
     d = prepare_run_dir(tmp_path / "run")
-    with RunWriter(d, {"source": {"kind": "test"}, "start_utc": "2026-12-01T12:00:00.000Z"}) as w:
+    with RunWriter(d, {"source": {"kind": "test"}, "start_utc": "2026-12-01T12:00:00.000Z",
+                        "tracker": {"frame_ms": 85.0, "hop_ms": 20.0}}) as w:
         w.append(_frames())
     return d
 
@@ -59,6 +60,11 @@ def test_json_keys_and_values(which, request, capsys):
     np.testing.assert_allclose(out["oadev_hz"], ref.oadev_hz, rtol=1e-3)
     assert out["drift_hz_per_min"] == pytest.approx(0.2, abs=5 * out["drift_u_hz_per_min"])
     assert out["tempco_hz_per_degc"] is None and out["warmup"]["threshold_hz_per_min"] > 0
+    if which == "run_dir":  # run.json names the tracker frame: taus inside one frame are marked
+        assert out["tracker_frame_s"] == 0.085
+        assert out["within_frame"][:4] == [True, True, True, False]
+    else:
+        assert out["tracker_frame_s"] is None and not any(out["within_frame"])
 
 
 def test_table_text(run_dir, capsys):
