@@ -122,7 +122,7 @@ class VirtualAudio:
         self.sink = sink
 
     def play(self, wav_path: str | os.PathLike) -> subprocess.Popen:
-        """Start playing a WAV file into the sink (returns the player process)."""
+        """Start playing a WAV file into the sink (returns the player; finish with communicate())."""
         return subprocess.Popen(["paplay", f"--device={self.sink}", str(wav_path)],
                                 stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
 
@@ -140,7 +140,8 @@ def virtual_audio():
     if not _server_up():
         # -n: no default config; the server is ours alone (root is tolerated with a warning)
         proc = subprocess.run(["pulseaudio", "--daemonize=true", "--exit-idle-time=-1", "-n",
-                               f"--load=module-null-sink sink_name={SINK}", "--load=module-native-protocol-unix"],
+                               f"--load=module-null-sink sink_name={SINK}",
+                               "--load=module-native-protocol-unix auth-anonymous=1"],
                               capture_output=True, text=True, timeout=20)
         deadline = time.monotonic() + 10
         while not _server_up():
@@ -148,6 +149,13 @@ def virtual_audio():
                 pytest.fail(f"could not start PulseAudio: {proc.stderr.strip()[-300:]}")
             time.sleep(0.1)
         started = True
+    # name the server explicitly, so clients whose config folder differs (a subprocess with its
+    # own XDG_CONFIG_HOME) still find it
+    server = next((line.split(":", 1)[1].strip() for line in _pactl("info").stdout.splitlines()
+                   if line.startswith("Server String:")), None)
+    old_env = os.environ.get("PULSE_SERVER")
+    if server:
+        os.environ["PULSE_SERVER"] = server
     sinks = _pactl("list", "short", "sinks").stdout
     if SINK not in sinks.split():
         res = _pactl("load-module", "module-null-sink", f"sink_name={SINK}")
@@ -164,6 +172,10 @@ def virtual_audio():
     except InputError as exc:
         pytest.skip(str(exc))
     yield VirtualAudio(SINK)
+    if old_env is None:
+        os.environ.pop("PULSE_SERVER", None)
+    else:
+        os.environ["PULSE_SERVER"] = old_env
     if started:
         _pactl("exit")
     else:
