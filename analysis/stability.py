@@ -6,8 +6,10 @@ terms, equivalent degrees of freedom and chi-squared interval (:mod:`.allan_edf`
 dominant noise type per averaging time -> linear drift, warm-up and temperature coefficient.
 
 Gaps and timing
-    Frames are counted off in steps of the median spacing; tau0 and the grid origin are then
-    the least-squares line of frame time on step number. Each frame sits on its step; frame times may jitter by up to a quarter of tau0 (their RMS offset
+    Frames are counted off in steps of the median spacing. A jump of 1.5 steps or more is a
+    gap: its missing steps become NaN (at least one) and the stretch after it keeps its own time
+    origin. tau0 is the least-squares slope of frame time on step number pooled within the
+    gap-free stretches. Each frame sits on its step; frame times may jitter by up to a quarter of tau0 (their RMS offset
     is reported) but a log whose times stray further, or put two frames on one step, is
     refused rather than silently resampled. Grid steps without a frame, and frames flagged
     unusable (no tone, out of band, gap), are NaN. The estimators keep only terms whose
@@ -98,24 +100,35 @@ def to_uniform(t_s, freq_hz, usable=None, source: str = "log") -> UniformSeries:
     dt = np.diff(t)
     if not np.all(np.isfinite(t)) or np.any(dt <= 0):
         raise InputError(f"{source}: frame times must be finite and increasing")
-    # count grid steps frame to frame with the median spacing (robust to local jitter), then
-    # refine tau0 and the origin by least squares of time on step number, so that a spacing
-    # a little off the median does not accumulate into whole-step errors over a long record
+    # count grid steps frame to frame with the median spacing (robust to local jitter)
     step = np.rint(dt / float(np.median(dt))).astype(np.int64)
     if np.any(step < 1):
         i = int(np.argmax(step < 1))
         raise InputError(f"{source}: frame times too uneven for a uniform grid (frames at {t[i]:.6g} and "
                          f"{t[i + 1]:.6g} s are closer than half the median spacing); resample the log first")
-    k = np.concatenate(([0], np.cumsum(step)))
-    kc = k - k.mean()
-    tau0 = float(np.sum(kc * (t - t.mean())) / np.sum(kc * kc))
-    t_origin = float(t.mean() - tau0 * k.mean())
-    off = (t - t_origin) / tau0 - k
+    # a jump of 1.5 steps or more is a gap; dropped input rarely loses a whole number of frames,
+    # so each gap-free stretch keeps its own time origin, and tau0 is the least-squares slope of
+    # time on step number pooled within the stretches (a spacing a little off the median then
+    # cannot accumulate into whole-step errors over a long record)
+    seg = np.concatenate(([0], np.cumsum(step >= 2)))
+    k_in = np.arange(t.size) - np.searchsorted(seg, seg, side="left")  # step number within its stretch
+    cnt = np.bincount(seg).astype(float)
+    kc = k_in - (np.bincount(seg, k_in) / cnt)[seg]
+    tc = t - (np.bincount(seg, t) / cnt)[seg]
+    den = float(np.sum(kc * kc))
+    tau0 = float(np.sum(kc * tc) / den) if den > 0 else float(np.median(dt))
+    off = tc / tau0 - kc
     worst = float(np.max(np.abs(off)))
     if worst > MAX_JITTER:
         i = int(np.argmax(np.abs(off)))
         raise InputError(f"{source}: frame times too uneven for a uniform grid (frame at {t[i]:.6g} s is "
                          f"{off[i]:+.2f} steps of {tau0:.6g} s off); resample the log to even spacing first")
+    # whole steps across each gap with the refined tau0, at least one empty step so no term bridges it
+    gap = step >= 2
+    step = np.where(gap, np.maximum(np.rint(dt / tau0).astype(np.int64), 2), 1)
+    k = np.concatenate(([0], np.cumsum(step)))
+    first = seg == 0
+    t_origin = float(np.mean(t[first] - tau0 * k[first]))
     n = int(k[-1]) + 1
     if n > MAX_GRID:
         raise InputError(f"{source}: {n} grid steps of {tau0:.6g} s is too many to analyse")

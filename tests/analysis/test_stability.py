@@ -245,6 +245,7 @@ def test_gap_in_log_equals_halves_pooled():
     f = 8000 + 0.03 * rng.standard_normal(t.size)
     keep = np.ones(t.size, bool)
     keep[1000:1100] = False  # rows missing from the log
+    t = t + np.where(np.arange(t.size) >= 1100, 0.37 * tau0, 0.0)  # dropped input: not whole frames
     usable = np.ones(t.size, bool)
     usable[2000:2010] = False  # frames flagged unusable
     res = analyse_stability(t[keep], f[keep], usable[keep])
@@ -259,6 +260,14 @@ def test_gap_in_log_equals_halves_pooled():
                 den += n[0]
         assert res.oadev_hz[i] == pytest.approx(math.sqrt(num / den), rel=1e-10)
         assert res.n_terms["oadev"][i] == den
+
+
+def test_short_time_jump_still_separates():
+    # a jump of 1.6 steps loses part of a frame: it must become a gap (one empty step), not be bridged
+    t = np.concatenate([np.arange(100) * 1.0, 100.6 + np.arange(100) * 1.0])
+    s = to_uniform(t, np.ones(200))
+    assert s.freq_hz.size == 201 and np.isnan(s.freq_hz[100]) and s.n_missing == 1
+    assert list(s.segment_lengths()) == [100, 100]
 
 
 def test_jitter_tolerated_and_uneven_refused():
