@@ -175,6 +175,8 @@ def run(args) -> int:
 
         source = SoundcardSource(args.device, args.rate, args.channel)
     settings, corr = tracking_from_args(args, source.sample_rate_hz)
+    for line in corr.warnings():  # e.g. an even Nyquist zone inverts the apparent shift
+        print(f"coilshift: {line}", file=sys.stderr)
     existed = Path(args.out).exists()
     run_dir = prepare_run_dir(args.out, args.force)
     if args.force:
@@ -212,9 +214,10 @@ def run(args) -> int:
                     plot.update(engine.snapshot())
         elif sys.stdout.isatty() and sys.stdin.isatty():
             how = TerminalPanel(engine, title).run(plot)
-        else:
-            print(title, flush=True)
-            PlainLines(engine).run(plot)
+        else:  # not a terminal: a plain line a second (on stderr when stdout carries the JSON)
+            stream = sys.stderr if args.json else sys.stdout
+            stream.write(title + "\n")
+            PlainLines(engine, out=stream).run(plot)
     except KeyboardInterrupt:
         how = "interrupt"
     finally:

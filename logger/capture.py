@@ -195,6 +195,8 @@ class CaptureEngine:
         self._worker_error: BaseException | None = None
         self._summary: dict | None = None
         self._started = False
+        self._arrival_first: tuple[int, float] | None = None  # (samples so far, host clock) per block
+        self._arrival_last: tuple[int, float] | None = None
         self._adc_first: tuple[int, float] | None = None
         self._adc_last: tuple[int, float] | None = None
         self._baselines: list[dict] = []
@@ -324,6 +326,9 @@ class CaptureEngine:
         n = block.shape[0]
         start = self._delivered
         self._delivered = start + n
+        self._arrival_last = (start + n, time.monotonic())
+        if self._arrival_first is None:
+            self._arrival_first = self._arrival_last
         try:
             self._queue.put_nowait((block, adc_time_s, overflow, start, self._lost_pending))
             self._lost_pending = 0
@@ -620,10 +625,7 @@ class CaptureEngine:
             "markers": len(self._markers),
             "baselines": self._baselines,
         }
-        if self._adc_first and self._adc_last and self._adc_last[1] - self._adc_first[1] > 5.0:
-            # the stream's rate against the host clock, from its ADC timestamps
-            totals["adc_clock_rate_hz"] = (self._adc_last[0] - self._adc_first[0]) / (
-                self._adc_last[1] - self._adc_first[1])
+        totals.update(self._measured_rates())
         if self.audio is not None:
             self.writer.meta["audio"] = self.audio.describe()
         self.writer.close(totals, status=self._status)
@@ -632,6 +634,26 @@ class CaptureEngine:
         with self._lock:
             self._snap.status = self._status
             self._snap.message = self._message
+
+    def _measured_rates(self) -> dict:
+        """The rate the stream really delivered, against the computer's clock (runs over 5 s).
+
+        From block arrival times: uncertain by about the callback jitter (one buffer) divided by
+        the run length. From the stream's ADC timestamps when they are plausible (some drivers
+        and sound servers report unrelated values; those are left out).
+        """
+        out: dict = {}
+        a, b = self._arrival_first, self._arrival_last
+        if a and b and b[1] - a[1] > 5.0:
+            out["delivered_rate_hz"] = (b[0] - a[0]) / (b[1] - a[1])
+            out["delivered_rate_note"] = (f"samples per second of the computer clock over {b[1] - a[1]:.1f} s; "
+                                          f"uncertain by about one buffer / run length")
+        a, b = self._adc_first, self._adc_last
+        if a and b and b[1] - a[1] > 5.0:
+            rate = (b[0] - a[0]) / (b[1] - a[1])
+            if abs(rate / self.sample_rate_hz - 1) < 0.01:
+                out["adc_clock_rate_hz"] = rate
+        return out
 
     # ------------------------------------------------------------------ markers
     def _close_open_marker(self, t: float) -> None:
