@@ -27,8 +27,15 @@ def register(subparsers) -> None:
                    help="operating frequency (default: the coil's LC frequency with --cap-nf)")
     p.add_argument("--distances-mm", type=float, nargs="+", metavar="Z",
                    help="distances to tabulate (default: 0.2 to 4 coil radii)")
-    p.add_argument("--threshold-hz", type=float, metavar="X",
-                   help="smallest detectable |shift| (e.g. 3 x the Allan deviation at the reading time)")
+    th = p.add_mutually_exclusive_group()
+    th.add_argument("--threshold-hz", type=float, metavar="X", help="smallest detectable |shift|, Hz")
+    th.add_argument("--noise-hz", type=float, metavar="S",
+                    help="the oscillator's Allan deviation (Hz) at the reading time: threshold = "
+                         "SIGMAS x sqrt(2) x S (a reading minus its baseline)")
+    th.add_argument("--noise-log", metavar="RUN",
+                    help="take that Allan deviation from a target-free frequency log at --tau-s")
+    p.add_argument("--tau-s", type=float, default=1.0, help="reading (averaging) time for --noise-log (default 1 s)")
+    p.add_argument("--sigmas", type=float, default=3.0, help="threshold multiple of the noise (default 3)")
     p.add_argument("--json", action="store_true", help="print one JSON object")
     p.set_defaults(func=run)
 
@@ -62,6 +69,36 @@ def target_from_args(args):
     return make_target(name, args.diameter_mm, sigma, mu_r, "target options")
 
 
+def threshold_from_args(args) -> float | None:
+    """The detection threshold in Hz: given, or SIGMAS x sqrt(2) x the Allan deviation at tau."""
+    import math
+
+    from coilshift.logger.errors import InputError
+
+    if args.threshold_hz is not None:
+        if not (math.isfinite(args.threshold_hz) and args.threshold_hz > 0):
+            raise InputError(f"--threshold-hz {args.threshold_hz}: must be positive")
+        return args.threshold_hz
+    if args.noise_hz is None and args.noise_log is None:
+        return None
+    if not (math.isfinite(args.sigmas) and args.sigmas > 0):
+        raise InputError(f"--sigmas {args.sigmas}: must be positive")
+    if args.noise_hz is not None:
+        noise = args.noise_hz
+    else:
+        from coilshift.analysis.logread import read_log
+        from coilshift.analysis.stability import noise_at_tau_hz
+
+        if not (math.isfinite(args.tau_s) and args.tau_s > 0):
+            raise InputError(f"--tau-s {args.tau_s}: must be positive")
+        log = read_log(args.noise_log)
+        noise = noise_at_tau_hz(log.t_s, log.freq_hz, args.tau_s)
+    if not (math.isfinite(noise) and noise > 0):
+        raise InputError(f"{args.noise_log or '--noise-hz'}: no usable noise figure ({noise})")
+    # a reading is a tau-mean minus an adjacent baseline tau-mean: its spread is sqrt(2) ADEV(tau)
+    return args.sigmas * math.sqrt(2.0) * noise
+
+
 def run(args) -> int:
     import numpy as np
 
@@ -70,7 +107,6 @@ def run(args) -> int:
                                            predicted_response)
     from coilshift.cli.cmd_coil import design_from_args
     from coilshift.cli.common import print_json
-    from coilshift.logger.errors import InputError
 
     rep = analyse_coil(design_from_args(args))
     target = target_from_args(args)
@@ -87,12 +123,11 @@ def run(args) -> int:
         "induction_number": float(induction_number(target, pred.freq_hz)),
         **pred.to_dict(),
     }
-    if args.threshold_hz is not None:
-        if not args.threshold_hz > 0:
-            raise InputError(f"--threshold-hz {args.threshold_hz}: must be positive")
-        out["threshold_hz"] = args.threshold_hz
-        out["range_mm"] = predicted_range_mm(rep, target, pred.freq_hz, args.threshold_hz)
-        out["range_closed_form_mm"] = closed_form_range_mm(rep, target, pred.freq_hz, args.threshold_hz)
+    threshold = threshold_from_args(args)
+    if threshold is not None:
+        out["threshold_hz"] = threshold
+        out["range_mm"] = predicted_range_mm(rep, target, pred.freq_hz, threshold)
+        out["range_closed_form_mm"] = closed_form_range_mm(rep, target, pred.freq_hz, threshold)
     if args.json:
         print_json(out)
         return 0
@@ -110,9 +145,9 @@ def run(args) -> int:
     ]
     for z, s, dl, dr in zip(pred.distance_mm, pred.shift_hz, pred.delta_l_uh, pred.delta_r_ohm):
         lines.append(f"{z:12.4g} {s:+14.5g} {dl:+14.5g} {dr:14.5g}")
-    if args.threshold_hz is not None:
+    if threshold is not None:
         lines += ["",
-                  f"range for |shift| >= {args.threshold_hz:g} Hz: {out['range_mm']:.4g} mm (full winding); "
+                  f"range for |shift| >= {threshold:.4g} Hz: {out['range_mm']:.4g} mm (full winding); "
                   f"{out['range_closed_form_mm']:.4g} mm (single-loop closed form)",
                   "A bench model on the coil axis; soil, orientation and shape change real ranges. "
                   "Before digging, follow local rules and locate buried services."]

@@ -6,6 +6,7 @@ import json
 import subprocess
 import sys
 
+import numpy as np
 import pytest
 
 from coilshift.cli import main as cli_main
@@ -15,7 +16,10 @@ LOOP = ["--turns", "20", "--inner-diameter-mm", "200", "--length-mm", "5", "--de
 
 
 def run_main(capsys, *args):
-    code = cli_main.main(list(args))
+    try:
+        code = cli_main.main(list(args))
+    except SystemExit as exc:      # usage errors leave through argparse
+        code = exc.code
     out, err = capsys.readouterr()
     return code, out, err
 
@@ -70,6 +74,22 @@ def test_target_with_material_options(capsys):
     assert code == 0 and json.loads(out)["target"]["conductivity_s_per_m"] == 1e6
 
 
+def test_target_threshold_from_a_noise_log(tmp_path, capsys):
+    # The threshold is 3 x sqrt(2) x the overlapping Allan deviation at tau (a reading minus its
+    # baseline); the reference ADEV comes from allantools (an independent library)
+    allantools = pytest.importorskip("allantools")
+    rng = np.random.default_rng(7)
+    t = np.arange(600) * 0.05
+    f = 35000.0 + 0.02 * rng.standard_normal(t.size)
+    path = tmp_path / "quiet.csv"
+    path.write_text("t_s,freq_hz\n" + "".join(f"{a:.3f},{b:.6f}\n" for a, b in zip(t, f)))
+    code, out, err = run_main(capsys, "target", *LOOP, "--target", "cu:diameter_mm=20", "--noise-log", str(path),
+                              "--tau-s", "1.0", "--json")
+    assert code == 0, err
+    taus, adev, _, _ = allantools.oadev(f, rate=20.0, data_type="freq", taus=[1.0])[:4]
+    assert json.loads(out)["threshold_hz"] == pytest.approx(3 * np.sqrt(2) * adev[0], rel=1e-6)
+
+
 def test_astable_json(capsys):
     code, out, _ = run_main(capsys, "astable", "--r1-ohm", "3900", "--r2-ohm", "3000", "--cap-nf", "10", "--json")
     assert code == 0
@@ -92,13 +112,15 @@ def test_astable_json(capsys):
     ["target", *LOOP, "--material", "copper"],
     ["target", "--turns", "10", "--inner-diameter-mm", "100", "--length-mm", "1", "--target", "cu:diameter_mm=5"],
     ["target", *LOOP, "--target", "cu:diameter_mm=5", "--threshold-hz", "0"],
+    ["target", *LOOP, "--target", "cu:diameter_mm=5", "--noise-hz", "0.1", "--threshold-hz", "1"],
+    ["target", *LOOP, "--target", "cu:diameter_mm=5", "--noise-log", "/nonexistent/run"],
     ["astable", "--freq-hz", "1000", "--duty", "0.4"],
     ["astable", "--r1-ohm", "1000"],
 ])
 def test_refusals_are_one_line(args, capsys):
     code, out, err = run_main(capsys, *args)
     assert code != 0 and out == ""
-    assert err.count("\n") == 1 and err.startswith("coilshift: error:")
+    assert err.count("\n") == 1 and err.startswith("coilshift") and "error:" in err
 
 
 def test_bad_coil_file_named_in_the_message(tmp_path):
