@@ -19,10 +19,9 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy.special import ellipe, ellipk, ellipkm1
+from scipy.special import ellipe, ellipkm1
 
 MU0_H_PER_M = 1.25663706212e-6  # CODATA 2018
-INCH_M = 0.0254
 
 
 def wheeler_single_layer_uh(turns, mean_radius_in, length_in):

@@ -29,7 +29,7 @@ from scipy.special import bernoulli
 
 from coilshift.logger.errors import InputError
 
-from .coil import CoilDesign, CoilReport, as_report
+from .coil import CoilReport, as_report
 from .inductance import MU0_H_PER_M
 from .materials import MATERIALS, Material, find_material
 
