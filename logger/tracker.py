@@ -54,12 +54,15 @@ LEAKAGE_HARMONICS = 16
 #: mains frequencies and the number of their harmonics treated as hum
 MAINS_HZ = (50.0, 60.0)
 HUM_HARMONICS = 10
+#: a hum line must stand this far (power ratio, 10 dB) above the bins two either side of it
+HUM_PEAK_RATIO = 10.0
 #: bins either side of each harmonic left out of the noise estimate
 NOISE_GUARD_BINS = 3
-#: only every NOISE_STEP-th bin enters the noise median (cheaper; Hann neighbours are correlated)
-NOISE_STEP = 4
+#: the noise median uses about this many bins (every few bins: cheaper, and Hann neighbours are
+#: correlated anyway); 256 bins give the median to about 6 % (0.3 dB)
+NOISE_BINS = 256
 #: frames analysed together (bounds memory; results do not depend on it)
-CHUNK_FRAMES = 128
+CHUNK_FRAMES = 256
 #: the fine stage evaluates DTFTs on a (rows x DTFT_BLOCK) reshaping of the frame
 DTFT_BLOCK = 64
 
@@ -195,6 +198,7 @@ class _Plan:
         self.nbins = nbins
         i = np.arange(n)
         self.window = 0.5 - 0.5 * np.cos(2 * np.pi * i / n)  # periodic Hann
+        self.window32 = self.window.astype(np.float32)
         self.win_power = float(np.sum(self.window ** 2))  # = 3n/8
         self.kmin = MIN_CYCLES
         self.kmax = nbins - 1 - TOP_GUARD_BINS
@@ -209,7 +213,8 @@ class _Plan:
         in_band = np.zeros(nbins, dtype=bool)
         in_band[self.s0:self.s1 + 1] = True
         self.search_mask = in_band
-        self.noise_idx = np.arange(self.kmin, self.kmax + 1, NOISE_STEP)
+        self.noise_step = int(min(8, max(1, (self.kmax - self.kmin + 1) // NOISE_BINS)))
+        self.noise_idx = np.arange(self.kmin, self.kmax + 1, self.noise_step)
         m_search = max(self.s1 - self.s0 + 1, 2)
         self.detect_ratio = math.log(m_search / FALSE_ALARM_PER_FRAME)
         # subharmonic hypotheses: positions h/m of the strongest line, h = 1..m, m = 2..M
@@ -242,39 +247,47 @@ class _Plan:
         # blocked DTFT: frame (zero-padded) reshaped to rows of DTFT_BLOCK samples
         self.rows = -(-n // DTFT_BLOCK)
         self.npad = self.rows * DTFT_BLOCK
-        self.col_idx = np.arange(DTFT_BLOCK, dtype=float)
-        self.row_idx = np.arange(self.rows, dtype=float) * DTFT_BLOCK
+        self.rows_hi = -(-self.rows // 8)  # row phasors as a (rows_hi x 8) outer product
+        self.step8 = np.arange(max(8, self.rows_hi), dtype=float)
         self.harm = np.arange(1, LEAKAGE_HARMONICS + 1, dtype=float)
         self.am_phase = np.exp(1j * np.pi * (n - 1) / n)
         self.am_tan = math.tan(math.pi / (2 * n))
 
     # ------------------------------------------------------------------ stages
     def blocked_dtft(self, xpad, g):
-        """DTFT of each row of ``xpad`` (F, npad) at bins ``g`` (F, K) -> (F, K) complex."""
+        """DTFT of each row of ``xpad`` (F, npad) at bins ``g`` (F, K) -> ((F, K) complex, row sums)."""
         nrow = xpad.shape[0]
-        theta = -2 * np.pi * g / self.n  # (F, K)
-        ang = theta[:, :, None] * self.col_idx  # (F, K, B)
-        # real weights for cos and sin of every requested frequency: (F, B, 2K)
-        w = np.concatenate([np.cos(ang), np.sin(ang)], axis=1).transpose(0, 2, 1)
-        inner = np.matmul(xpad.reshape(nrow, self.rows, DTFT_BLOCK), w)  # (F, rows, 2K)
         k = g.shape[1]
-        inner_c = (inner[:, :, :k] + 1j * inner[:, :, k:]).transpose(0, 2, 1)  # (F, K, rows)
-        outer = np.exp(1j * theta[:, :, None] * self.row_idx)  # (F, K, rows)
-        return np.sum(inner_c * outer, axis=2)
+        theta = -2 * np.pi * g / self.n  # (F, K)
+        # phasors exp(j theta b) for b = 0..63 as an 8 x 8 outer product: 16 exponentials, not 64
+        fine = np.exp(1j * theta[:, :, None] * self.step8[:8])  # (F, K, 8)
+        coarse = np.exp(1j * theta[:, :, None] * (8 * self.step8[:8]))
+        col = (coarse[:, :, :, None] * fine[:, :, None, :]).reshape(nrow, k, DTFT_BLOCK)
+        # real weights for the real and imaginary parts of every requested frequency: (F, B, 2K)
+        # plus a column of ones: the row sums give the frame mean at no extra pass over the data
+        ones = np.ones((nrow, 1, DTFT_BLOCK))
+        w = np.concatenate([col.real, col.imag, ones], axis=1).transpose(0, 2, 1)
+        inner = np.matmul(xpad.reshape(nrow, self.rows, DTFT_BLOCK), w)  # (F, rows, 2K+1)
+        total = inner[:, :, 2 * k].sum(axis=1)
+        inner_c = inner[:, :, :k] + 1j * inner[:, :, k:2 * k]  # (F, rows, K)
+        rfine = np.exp(1j * theta[:, :, None] * (DTFT_BLOCK * self.step8[:8]))  # (F, K, 8)
+        rcoarse = np.exp(1j * theta[:, :, None] * (8 * DTFT_BLOCK * self.step8[:self.rows_hi]))
+        rowph = (rcoarse[:, :, :, None] * rfine[:, :, None, :]).reshape(nrow, k, -1)[:, :, :self.rows]
+        return np.einsum("frk,fkr->fk", inner_c, rowph), total
 
-    def analyse(self, frames):
-        """Analyse a (F, N) frame matrix; return dict of per-frame arrays."""
+    def analyse(self, frames, clipped):
+        """Analyse a (F, N) frame matrix; return freq_hz, amp_dbfs, snr_db, flags (arrays of F)."""
         s = self.settings
         n = self.n
         nf = frames.shape[0]
-        peak_abs = np.maximum(frames.max(axis=1), -frames.min(axis=1))
-        mean = frames.mean(axis=1)
-        xpad = np.zeros((nf, self.npad))
-        np.subtract(frames, mean[:, None], out=xpad[:, :n])
-        xw = np.empty((nf, n), dtype=np.float32)
-        np.multiply(xpad[:, :n], self.window, out=xw, casting="unsafe")
-        spec = sfft.rfft(xw, axis=1)  # complex64; single precision is ample for the coarse stage
-        power = spec.real * spec.real + spec.imag * spec.imag  # (F, nbins) float32
+        # a DC offset leaks only into bins 0 and 1 of a periodic-Hann DFT, which are never
+        # searched, so the coarse stage needs no mean removal; single precision is ample here
+        xw = frames.astype(np.float32)
+        xw *= self.window32
+        spec = sfft.rfft(xw, axis=1)
+        sq = spec.view(np.float32)
+        sq = sq * sq
+        power = sq[:, 0::2] + sq[:, 1::2]  # |X|^2, (F, nbins) float32
 
         # noise floor per Hann bin: median of a decimated spectrum / ln 2 (exponential power)
         noise_bins = power[:, self.noise_idx]
@@ -286,7 +299,7 @@ class _Plan:
         searchable = power
         for probe, flank, mask in self.hum:
             top = power[:, probe].max(axis=1)
-            hum_on = (top > detect) & (top > power[:, flank].max(axis=1))
+            hum_on = (top > detect) & (top > HUM_PEAK_RATIO * power[:, flank].max(axis=1))
             if hum_on.any():
                 if searchable is power:
                     searchable = power.copy()
@@ -355,7 +368,15 @@ class _Plan:
 
         # fine stage: exact-kernel Aboutanios-Mulgrew step with leakage cancellation
         g = np.stack([fc + 0.5, fc - 0.5], axis=1)  # (F, 2)
-        s_pm = self.blocked_dtft(xpad, g)
+        if self.npad == n:
+            xpad = frames
+        else:
+            xpad = np.zeros((nf, self.npad))
+            xpad[:, :n] = frames
+        # DTFT of the frame minus its mean: subtract the mean's kernel analytically
+        s_pm, total = self.blocked_dtft(xpad, g)
+        mean = total / n
+        s_pm -= mean[:, None] * np.conj(dirichlet(g, n))
         f_fine = fc.copy()
         a1 = amp_h[:, 0]
         for _ in range(2):
@@ -364,7 +385,7 @@ class _Plan:
         amp = 2 * np.abs(a1)
 
         if s.refine:
-            f_hz, ca, cb, _, _, conv = fit_sine4_frames(xpad[:, :n], self.fs, freq_bins * self.df)
+            f_hz, ca, cb, _, _, conv = fit_sine4_frames(frames, self.fs, freq_bins * self.df)
             ok = conv & (np.abs(f_hz / self.df - freq_bins) < 0.5)
             freq_bins = np.where(ok, f_hz / self.df, freq_bins)
             amp = np.where(ok, np.hypot(ca, cb), amp)
@@ -372,13 +393,22 @@ class _Plan:
         # noise with the tone's harmonics left out: the median of the remaining bins sits at rank
         # (nd - above + below) / 2 of the full sorted set, where above/below count the left-out
         # bins above/below the overall median (exact when none of them straddles the new median)
-        f_safe = np.where(freq_bins > 1, freq_bins, 1.0)
-        idx = self.noise_idx[None, :].astype(float)
-        near = np.abs(idx - f_safe[:, None] * np.rint(idx / f_safe[:, None])) <= NOISE_GUARD_BINS
-        near &= have[:, None]
-        high = noise_bins > noise_sorted[:, nd // 2:nd // 2 + 1]
-        n_above = np.sum(near & high, axis=1)
-        n_below = np.sum(near & ~high, axis=1)
+        # (only the fundamental and the harmonics found above are left out)
+        centre = freq_bins[:, None] * self.harm[None, :n_h]
+        step_b = self.noise_step
+        j_first = np.ceil((centre - NOISE_GUARD_BINS - self.kmin) / step_b).astype(int)
+        left_out = []
+        for step in range(2 * NOISE_GUARD_BINS // step_b + 1):
+            j = j_first + step
+            inside = (j >= 0) & (j < nd) & (self.kmin + step_b * j <= centre + NOISE_GUARD_BINS)
+            left_out.append((inside & hvalid & have[:, None], np.clip(j, 0, nd - 1)))
+        median_raw = noise_sorted[:, nd // 2:nd // 2 + 1]
+        n_above = np.zeros(nf, dtype=int)
+        n_below = np.zeros(nf, dtype=int)
+        for inside, j in left_out:
+            high = np.take_along_axis(noise_bins, j, axis=1) > median_raw
+            n_above += np.sum(inside & high, axis=1)
+            n_below += np.sum(inside & ~high, axis=1)
         rank = np.clip((nd - n_above + n_below) // 2, 0, nd - 1)
         noise_bin = np.take_along_axis(noise_sorted, rank[:, None], axis=1)[:, 0].astype(float) / math.log(2.0)
         noise_var = noise_bin / self.win_power  # white-equivalent noise variance per sample
@@ -387,10 +417,11 @@ class _Plan:
             amp_dbfs = 20 * np.log10(amp)
 
         fl_arr = np.zeros(nf, dtype=np.int64)
-        fl_arr[peak_abs >= s.clip_level] |= fl.CLIPPED
+        fl_arr[clipped] |= fl.CLIPPED
         freq_hz = freq_bins * self.df
         if s.band_hz is not None:
             # the dominant line over the whole spectrum: outside the band and not one of our harmonics?
+            f_safe = np.where(freq_bins > 1, freq_bins, 1.0)
             full = power[:, self.kmin:self.kmax + 1]
             kg = self.kmin + np.argmax(full, axis=1)
             pg = power[rows, kg].astype(float)
@@ -534,19 +565,27 @@ class FrameTracker:
             self._gap_pending = True
         if x.size == 0:
             return FrameTable.empty()
-        self._buf = np.concatenate([self._buf, x]) if self._buf.size else x.copy()
+        # no copy when nothing is buffered: the tail is copied below
+        self._buf = np.concatenate([self._buf, x]) if self._buf.size else x
         self._received += x.size
         n, hop = self.frame_len, self.hop_len
         off = self._next - self._buf_start
         avail = self._buf.size - off
         if avail < n:
+            if self._buf is x:
+                self._buf = x.copy()  # the caller may reuse its block buffer
             return FrameTable.empty()
         count = (avail - n) // hop + 1
-        windows = sliding_window_view(self._buf[off:], n)[::hop][:count]
+        used = self._buf[off:off + (count - 1) * hop + n]
+        windows = sliding_window_view(used, n)[::hop]
+        # frames holding a clipped sample, from one pass over the samples (not one per frame)
+        hits = np.flatnonzero(np.abs(used) >= self.settings.clip_level)
+        starts_rel = np.arange(count) * hop
+        clipped = np.searchsorted(hits, starts_rel) < np.searchsorted(hits, starts_rel + n)
         tables = []
         for i in range(0, count, CHUNK_FRAMES):
             chunk = windows[i:i + CHUNK_FRAMES]
-            freq, amp, snr, flg = self._plan.analyse(chunk)
+            freq, amp, snr, flg = self._plan.analyse(chunk, clipped[i:i + CHUNK_FRAMES])
             starts = self._next + (np.arange(i, i + chunk.shape[0])) * hop
             t_s = (starts + (n - 1) / 2) / self.sample_rate_hz
             tables.append(FrameTable(t_s, freq, amp, snr, flg))
