@@ -36,6 +36,9 @@ def register(subparsers) -> None:
                     help="take that Allan deviation from a target-free frequency log at --tau-s")
     p.add_argument("--tau-s", type=float, default=1.0, help="reading (averaging) time for --noise-log (default 1 s)")
     p.add_argument("--sigmas", type=float, default=3.0, help="threshold multiple of the noise (default 3)")
+    p.add_argument("-o", "--out", metavar="DIR",
+                   help="write prediction.csv, prediction.json and shift_vs_distance.png to a new folder")
+    p.add_argument("--force", action="store_true", help="allow --out to be a folder that is not empty")
     p.add_argument("--json", action="store_true", help="print one JSON object")
     p.set_defaults(func=run)
 
@@ -128,6 +131,8 @@ def run(args) -> int:
         out["threshold_hz"] = threshold
         out["range_mm"] = predicted_range_mm(rep, target, pred.freq_hz, threshold)
         out["range_closed_form_mm"] = closed_form_range_mm(rep, target, pred.freq_hz, threshold)
+    if args.out:
+        out["outputs"] = _write_outputs(args, rep, target, pred, out)
     if args.json:
         print_json(out)
         return 0
@@ -152,5 +157,38 @@ def run(args) -> int:
                   "A bench model on the coil axis; soil, orientation and shape change real ranges. "
                   "Before digging, follow local rules and locate buried services."]
     lines += [f"note: {n}" for n in pred.notes]
+    if args.out:
+        lines.append(f"wrote {', '.join(out['outputs'])} in {args.out}")
     print("\n".join(lines))
     return 0
+
+
+def _write_outputs(args, rep, target, pred, summary) -> list[str]:
+    """prediction.csv (the table), prediction.json (the summary) and the plot, in a new folder."""
+    import numpy as np
+
+    from coilshift.analysis.plots_models import plot_predicted_shift
+    from coilshift.analysis.target import closed_form_amplitude_hz, predicted_shift_hz
+    from coilshift.cli.common import new_output_dir, to_jsonable
+    from coilshift.logger.atomic import write_json_atomic, write_text_atomic
+
+    folder = new_output_dir(args.out, args.force)
+    rows = ["distance_mm,shift_hz,delta_l_uh,delta_r_ohm,delta_inv_q"]
+    for z, s, dl, dr, dq in zip(pred.distance_mm, pred.shift_hz, pred.delta_l_uh, pred.delta_r_ohm,
+                                pred.delta_inv_q):
+        rows.append(f"{z:.6g},{s:.9g},{dl:.9g},{dr:.9g},{dq:.9g}")
+    write_text_atomic(folder / "prediction.csv", "\n".join(rows) + "\n")
+    a = rep.mean_radius_mm
+    top = max(5.0 * a, float(np.max(pred.distance_mm)) if pred.distance_mm.size else 0.0,
+              summary.get("range_mm") or 0.0)
+    grid = np.geomspace(0.05 * a, top * 1.2, 200)
+    curve = predicted_shift_hz(rep, target, grid, pred.freq_hz)
+    closed = closed_form_amplitude_hz(rep, target, pred.freq_hz) * (a * a / (a * a + grid * grid)) ** 3
+    plot_predicted_shift(grid, curve, folder / "shift_vs_distance.png",
+                         title=f"{target.name} sphere {target.diameter_mm:g} mm, coil {rep.inductance_uh:.4g} uH "
+                               f"at {pred.freq_hz:.5g} Hz",
+                         points_mm=pred.distance_mm, points_hz=pred.shift_hz, closed_form_hz=closed,
+                         threshold_hz=summary.get("threshold_hz"), range_mm=summary.get("range_mm"))
+    names = ["prediction.csv", "prediction.json", "shift_vs_distance.png"]
+    write_json_atomic(folder / "prediction.json", to_jsonable({**summary, "outputs": names}))
+    return names

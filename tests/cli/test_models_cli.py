@@ -90,6 +90,22 @@ def test_target_threshold_from_a_noise_log(tmp_path, capsys):
     assert json.loads(out)["threshold_hz"] == pytest.approx(3 * np.sqrt(2) * adev[0], rel=1e-6)
 
 
+def test_target_output_folder(tmp_path, capsys):
+    out_dir = tmp_path / "pred"
+    args = ["target", *LOOP, "--target", "brass:diameter_mm=15", "--distances-mm", "10", "40", "--threshold-hz", "0.2",
+            "-o", str(out_dir)]
+    code, out, err = run_main(capsys, *args)
+    assert code == 0, err
+    assert sorted(p.name for p in out_dir.iterdir()) == ["prediction.csv", "prediction.json", "shift_vs_distance.png"]
+    rows = (out_dir / "prediction.csv").read_text().splitlines()
+    assert rows[0] == "distance_mm,shift_hz,delta_l_uh,delta_r_ohm,delta_inv_q" and len(rows) == 3
+    saved = json.loads((out_dir / "prediction.json").read_text())
+    assert saved["range_mm"] > 0 and saved["target"]["name"] == "brass"
+    before = (out_dir / "prediction.csv").read_bytes()
+    code, _, err = run_main(capsys, *args)          # a second run must not overwrite
+    assert code != 0 and "not empty" in err and (out_dir / "prediction.csv").read_bytes() == before
+
+
 def test_astable_json(capsys):
     code, out, _ = run_main(capsys, "astable", "--r1-ohm", "3900", "--r2-ohm", "3000", "--cap-nf", "10", "--json")
     assert code == 0
