@@ -1,7 +1,6 @@
 """``coilshift track`` and ``coilshift clock-error`` run as a user runs them (subprocess).
 
 Bad inputs must give exactly one line on stderr, a non-zero exit, no traceback, and write nothing.
-Test recordings are written with the stdlib ``wave`` module (independent of soundfile).
 """
 
 from __future__ import annotations
@@ -10,10 +9,10 @@ import json
 import os
 import subprocess
 import sys
-import wave
 
 import numpy as np
 import pytest
+import soundfile as sf
 
 from coilshift.logger.synthetic import ToneSource
 
@@ -27,12 +26,8 @@ def cli(*args, cwd=None):
 
 
 def wav16(path, x, fs=FS):
-    ints = np.clip(np.round(np.asarray(x) * 32767), -32768, 32767).astype("<i2")
-    with wave.open(str(path), "wb") as w:
-        w.setnchannels(1)
-        w.setsampwidth(2)
-        w.setframerate(fs)
-        w.writeframes(ints.tobytes())
+    # the WAV reader itself is checked against stdlib-written bytes in tests/logger/test_sources.py
+    sf.write(str(path), np.asarray(x), fs, subtype="PCM_16")
     return path
 
 
