@@ -124,6 +124,14 @@ def sniff_format(path_or_file: PathOrFile) -> str:
         if by_magic != want:
             raise InputError(f"{name}: named {ext} but holds {by_magic} data")
         return by_magic
+    if head.startswith((b"\xff\xfe", b"\xfe\xff")):
+        raise InputError(f"{name}: UTF-16 text is not supported; export or re-save it as ASCII/UTF-8 CSV")
+    if ext in TEXT_EXTENSIONS:
+        if by_magic is not None:
+            raise InputError(f"{name}: named {ext} but holds {by_magic} data")
+        if not _looks_like_text(head):
+            raise InputError(f"{name}: named {ext} but is not a text file")
+        return "CSV"
     if by_magic is not None:
         return by_magic
     if _looks_like_text(head):

@@ -173,6 +173,18 @@ def test_extension_and_magic_must_agree(tmp_path):
     r = tmp_path / "scope.bin"
     r.write_text("t,v\n0,1\n1,2\n")
     assert sniff_format(r) == "CSV"
+    w = tmp_path / "wave.csv"
+    w.write_bytes(data)
+    with pytest.raises(InputError, match="named .csv but holds WAV"):
+        sniff_format(w)
+    b = tmp_path / "junk.csv"
+    b.write_bytes(bytes(range(256)) * 4)
+    with pytest.raises(InputError, match="not a text file"):
+        sniff_format(b)
+    u = tmp_path / "utf16.csv"
+    u.write_text("t,v\n0,1\n", encoding="utf-16")
+    with pytest.raises(InputError, match="UTF-16"):
+        sniff_format(u)
 
 
 # ----------------------------------------------------------------------------- scope CSV
