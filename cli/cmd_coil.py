@@ -112,11 +112,14 @@ def run(args) -> int:
         lines.append(f"  round-wire rings   {_fmt(rep.round_wire_inductance_uh, 'uH')}")
     lines += [
         f"  mean radius        {_fmt(rep.mean_radius_mm, 'mm')}",
-        f"  wire               {_fmt(rep.wire_bare_diameter_mm, 'mm bare')}, "
-        f"{_fmt(rep.wire_outer_diameter_mm, 'mm over enamel (approximate build)')}",
+        "  wire               " + ("not given (--awg or --wire-diameter-mm)" if rep.wire_bare_diameter_mm is None
+                                     else f"{_fmt(rep.wire_bare_diameter_mm, 'mm bare')}, "
+                                          f"{_fmt(rep.wire_outer_diameter_mm, 'mm over enamel')}"
+                                          + ("" if design.outer_wire_diameter_mm else " (approximate build)")),
         f"  wire length        {_fmt(rep.wire_length_m, 'm')}",
-        f"  DC resistance      {_fmt(rep.resistance_ohm, 'ohm')} at {design.temp_c:g} degC "
-        f"({_fmt(rep.resistance_per_km_ohm, 'ohm/km')})",
+        "  DC resistance      " + ("-" if rep.resistance_ohm is None else
+                                     f"{_fmt(rep.resistance_ohm, 'ohm')} at {design.temp_c:g} degC "
+                                     f"({_fmt(rep.resistance_per_km_ohm, 'ohm/km')})"),
         f"  self-capacitance   {_fmt(rep.self_capacitance_pf, 'pF')} (Medhurst 1947)",
         f"  self-resonance     {_fmt(rep.srf_hz, 'Hz')}",
         f"  LC frequency       {_fmt(rep.lc_freq_hz, 'Hz')}"
