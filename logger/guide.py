@@ -1,7 +1,7 @@
 """Guided calibration: the step sequence of a calibration run, independent of any device.
 
-A session is a list of stretches: a first target-free baseline (twice the dwell, so the noise at
-the dwell time can be measured), then for every repeat, target and distance a target stretch
+A session is a list of stretches: a first target-free baseline (2.5 times the dwell, so the noise
+at the dwell time, which needs two dwells of unbroken baseline, can be measured), then for every repeat, target and distance a target stretch
 followed by a baseline stretch. So every target position has a baseline right before and right
 after it, and the analysis can interpolate the baseline across it (drift cancels).
 
@@ -25,6 +25,9 @@ from .markers import BASELINE, Marker
 UNITS_MM = {"mm": 1.0, "cm": 10.0, "in": 25.4}
 DEFAULT_DWELL_S = 10.0
 DEFAULT_SETTLE_S = 2.0
+#: the first baseline lasts this many dwells: the Allan deviation at the dwell needs two
+#: unbroken dwells, plus margin for the analysis' own trimming
+FIRST_BASELINE_FACTOR = 2.5
 #: answers to a prompt that end the session early (the stretches done so far are kept)
 QUIT_WORDS = ("q", "quit", "stop")
 #: answer that skips a target position (its closing baseline is still recorded)
@@ -87,7 +90,7 @@ def plan_session(targets: list[str], distances_mm: list[float], repeats: int = 1
                  dwell_s: float = DEFAULT_DWELL_S, first_baseline_s: float | None = None) -> list[Stretch]:
     """The stretches of a calibration session, in order.
 
-    First baseline (``first_baseline_s``, default twice the dwell), then for every repeat, target
+    First baseline (``first_baseline_s``, default 2.5 x the dwell), then for every repeat, target
     and distance: target stretch, baseline stretch.
     """
     if not targets:
@@ -99,7 +102,7 @@ def plan_session(targets: list[str], distances_mm: list[float], repeats: int = 1
         raise InputError(f"--dwell {dwell_s}: must be positive seconds")
     if repeats < 1:
         raise InputError(f"--repeats {repeats}: must be at least 1")
-    first = 2.0 * dwell_s if first_baseline_s is None else float(first_baseline_s)
+    first = FIRST_BASELINE_FACTOR * dwell_s if first_baseline_s is None else float(first_baseline_s)
     plan = [Stretch(BASELINE, math.nan, first, 0)]
     for r in range(1, repeats + 1):
         for name in names:
@@ -172,6 +175,7 @@ class CalibrationGuide:
         self.settle_s = float(settle_s)
         self.ask, self.say, self.sleep = ask, say, sleep
         self.unit = unit
+        self.result = GuideResult()
 
     def _ended(self) -> bool:
         w = getattr(self.engine, "wait", None)
@@ -193,8 +197,12 @@ class CalibrationGuide:
         return float(t) if isinstance(t, (int, float)) else float(self.engine.elapsed_s)
 
     def run(self) -> GuideResult:
-        """Run the whole session; returns the stretches recorded (also on quit or engine stop)."""
-        res = GuideResult()
+        """Run the whole session; returns the stretches recorded (also on quit or engine stop).
+
+        The result is also kept in ``self.result`` as it grows, so a caller interrupted by
+        Ctrl-C still has every finished stretch.
+        """
+        res = self.result = GuideResult()
         total = len(self.plan)
         skip_next_baseline = False
         for i, st in enumerate(self.plan, start=1):

@@ -71,7 +71,7 @@ def test_plan_brackets_every_position_with_baselines():
     plan = plan_session(["steel", "coin"], [10.0, 20.0], repeats=2, dwell_s=5.0)
     kinds = ["B" if s.is_baseline else "T" for s in plan]
     assert kinds == ["B"] + ["T", "B"] * 8
-    assert plan[0].dwell_s == 10.0  # first baseline: 2 x dwell, so the noise at the dwell is measurable
+    assert plan[0].dwell_s == 12.5  # first baseline: 2.5 x dwell, so the noise at the dwell is measurable
     assert [(s.target, s.distance_mm, s.repeat) for s in plan if not s.is_baseline][:3] == [
         ("steel", 10.0, 1), ("steel", 20.0, 1), ("coin", 10.0, 1)]
 
@@ -92,10 +92,10 @@ def test_full_session_marks_settled_stretches_of_the_dwell_length():
     assert res.completed and not res.skipped
     assert "2 cm" in script.prompts[3] and "M8 bolt" in script.prompts[1]
     assert [m.target for m in res.markers] == [BASELINE, "M8 bolt", BASELINE, "M8 bolt", BASELINE]
-    # each stretch starts after the settling time and lasts the dwell (first baseline 2 x dwell);
+    # each stretch starts after the settling time and lasts the dwell (first baseline 2.5 x dwell);
     # times are the engine's audio clock, advanced in polls of at most 50 ms
     t = 0.0
-    for m, dwell in zip(res.markers, (6.0, 3.0, 3.0, 3.0, 3.0)):
+    for m, dwell in zip(res.markers, (7.5, 3.0, 3.0, 3.0, 3.0)):
         assert m.start_s == pytest.approx(t + 1.5, abs=1e-9)
         assert m.end_s - m.start_s == pytest.approx(dwell, abs=1e-9)
         t = m.end_s
@@ -126,7 +126,7 @@ def test_engine_stopping_ends_the_session():
                            say=lambda s: None, sleep=eng.sleep).run()
     script.done()
     assert not res.completed and "stopped" in res.reason
-    assert len(res.markers) == 0  # the first baseline (6 s) never finished
+    assert len(res.markers) == 0  # the first baseline (7.5 s) never finished
 
 
 def test_end_of_input_stops_like_quit():

@@ -1,0 +1,133 @@
+"""``coilshift calibrate``: a guided calibration run from a live input, analysed at the end."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+ORDER = 25
+
+HELP = "guided calibration: prompts you through target positions and baselines while capturing live"
+
+
+def register(subparsers) -> None:
+    from coilshift.cli.cmd_analyze import add_analysis_options
+    from coilshift.cli.cmd_capture import WIRING_CAUTION, add_tracking_options
+
+    p = subparsers.add_parser(
+        "calibrate", help=HELP,
+        description="Capture a calibration run live: a first target-free baseline, then for every target and "
+                    "distance you place the target and press Enter, the stretch is recorded after a settling "
+                    "time, you remove it and press Enter, and a baseline is recorded; so every position has a "
+                    "baseline before and after it. markers.csv is written as you go. The run is analysed at "
+                    "the end (as 'coilshift analyze' would). " + WIRING_CAUTION)
+    p.add_argument("-o", "--out", required=True, metavar="RUN_DIR", help="run folder to create (new or empty)")
+    p.add_argument("--force", action="store_true", help="replace the run files in an existing folder "
+                                                        "(and allow a non-empty --report folder)")
+    s = p.add_argument_group("session")
+    s.add_argument("--target", action="append", required=True, metavar="NAME",
+                   help="a target to calibrate (repeat for several), e.g. --target 'steel washer'")
+    s.add_argument("--distances", required=True, metavar="LIST",
+                   help="distances from the coil face, comma-separated, e.g. 10,20,40,80")
+    s.add_argument("--unit", choices=("mm", "cm", "in"), default="mm", help="unit of --distances (default mm)")
+    s.add_argument("--dwell", type=float, default=10.0, metavar="S",
+                   help="seconds recorded per stretch (default 10; the first baseline lasts 2.5 times as long)")
+    s.add_argument("--settle", type=float, default=2.0, metavar="S",
+                   help="seconds waited after each move before recording (default 2)")
+    s.add_argument("--repeats", type=int, default=1, metavar="N", help="run the whole sequence N times (default 1)")
+    src = p.add_argument_group("input")
+    src.add_argument("--device", help="input device: index or part of its name (see 'coilshift devices')")
+    src.add_argument("--rate", type=float, metavar="HZ", help="sample rate (default: the device's default rate)")
+    src.add_argument("--channel", type=int, default=0, metavar="C", help="input channel, from 0 (default 0)")
+    src.add_argument("--synthetic", metavar="SPEC", help=argparse.SUPPRESS)  # paced test tone, as in capture
+    add_tracking_options(p)
+    add_analysis_options(p, settle=False)
+    out = p.add_argument_group("output")
+    out.add_argument("--report", metavar="OUT", dest="report_dir",
+                     help="also write the analysis (tables, plots, report.html) to this new folder")
+    out.add_argument("--json", action="store_true", help="print the analysis as one JSON object (prompts go "
+                                                         "to stderr)")
+    p.set_defaults(func=run)
+
+
+def _ask_on(stream):
+    def ask(prompt: str) -> str:
+        stream.write(prompt)
+        stream.flush()
+        line = sys.stdin.readline()
+        if not line:
+            raise EOFError
+        if not sys.stdin.isatty():  # piped answers are not echoed: end the prompt's line ourselves
+            stream.write("\n")
+        return line.rstrip("\n")
+    return ask
+
+
+def run(args) -> int:
+    import math
+    from pathlib import Path
+
+    from coilshift.cli.cmd_analyze import analysis_kwargs, report_results
+    from coilshift.cli.cmd_capture import WIRING_CAUTION, _synthetic_source, tracking_from_args
+    from coilshift.logger.capture import CaptureEngine
+    from coilshift.logger.errors import InputError
+    from coilshift.logger.guide import CalibrationGuide, parse_distances, plan_session
+    from coilshift.logger.markers import markers_to_csv
+    from coilshift.logger.runlog import prepare_run_dir, write_markers_copy
+
+    # every check that can fail does so before the device is opened or a folder created
+    distances = parse_distances(args.distances, args.unit)
+    plan = plan_session(args.target, distances, args.repeats, args.dwell)
+    if not (math.isfinite(args.settle) and args.settle >= 0):
+        raise InputError(f"--settle {args.settle:g}: must be zero or positive seconds")
+    kwargs = analysis_kwargs(args)
+    if args.report_dir and Path(args.report_dir).resolve() == Path(args.out).resolve():
+        raise InputError(f"{args.report_dir}: the report folder must differ from the run folder")
+    talk = sys.stderr if args.json else sys.stdout
+    if args.synthetic:
+        source = _synthetic_source(args.synthetic, args.rate, None)
+    else:
+        from coilshift.logger.soundcard import SoundcardSource
+
+        source = SoundcardSource(args.device, args.rate, args.channel)
+    settings, corr = tracking_from_args(args, source.sample_rate_hz)
+    print(WIRING_CAUTION + "\n", file=sys.stderr)
+    run_dir = prepare_run_dir(args.out, args.force)
+    session = {"targets": list(args.target),
+               "distances_mm": distances, "unit": args.unit, "dwell_s": args.dwell, "settle_s": args.settle,
+               "repeats": args.repeats}
+    engine = CaptureEngine(source, run_dir, settings, corr, baseline_s=min(args.baseline_s, plan[0].dwell_s),
+                           meta={"command": "coilshift " + " ".join(sys.argv[1:]) if sys.argv else "calibrate",
+                                 "calibration": session})
+    engine.start()
+    guide = CalibrationGuide(engine, plan, settle_s=args.settle, ask=_ask_on(talk),
+                             say=lambda msg: print(msg, file=talk, flush=True), unit=args.unit)
+    interrupted = False
+    try:
+        result = guide.run()
+    except KeyboardInterrupt:
+        interrupted = True
+        result = guide.result
+    finally:
+        summary = engine.stop()
+    if result.markers:
+        # the engine kept markers.csv current during the run; the guide's list is the final word
+        write_markers_copy(run_dir, markers_to_csv(result.markers))
+    state = "complete" if result.completed else f"ended early ({'interrupted' if interrupted else result.reason})"
+    print(f"session {state}: {len(result.markers)} stretch(es) recorded in {run_dir}; capture "
+          f"{summary['status']}, {summary['rows']} rows", file=talk)
+    if summary["status"] not in ("complete",):
+        print(f"coilshift: error: capture {summary['status']}: {summary.get('message', '')}; "
+              f"the log up to then is kept in {run_dir}", file=sys.stderr)
+    n_targets = sum(1 for m in result.markers if not m.is_baseline)
+    if n_targets == 0:
+        print("coilshift: no target stretch was recorded, nothing to analyse", file=sys.stderr)
+        return 130 if interrupted else 1
+    from coilshift.analysis.calibration import analyse_run
+
+    # the guide marked only settled stretches, so nothing more is trimmed
+    res = analyse_run(run_dir, **{**kwargs, "settle_s": 0.0})
+    report_results([res], argparse.Namespace(output=args.report_dir, force=args.force, json=args.json))
+    if interrupted:
+        return 130
+    return 0 if summary["status"] == "complete" else 1
