@@ -177,16 +177,23 @@ def run(args) -> int:
     settings, corr = tracking_from_args(args, source.sample_rate_hz)
     for line in corr.warnings():  # e.g. an even Nyquist zone inverts the apparent shift
         print(f"coilshift: {line}", file=sys.stderr)
+    interactive = not args.no_view and sys.stdout.isatty() and sys.stdin.isatty()
     existed = Path(args.out).exists()
     run_dir = prepare_run_dir(args.out, args.force)
-    if args.force:
-        for old in list(run_dir.glob("audio.wav")) + list(run_dir.glob("audio-[0-9][0-9][0-9].wav")):
-            old.unlink()
-    show_caution_once()
     engine = CaptureEngine(source, run_dir, settings, corr, baseline_s=args.baseline_s, save_audio=args.save_audio,
                            max_seconds=args.seconds,
                            meta={"command": "coilshift " + " ".join(sys.argv[1:]) if sys.argv else "capture"})
     try:
+        if show_caution_once() and interactive:
+            # the live panel clears the screen: let the caution be read first
+            try:
+                input("Press Enter to start the capture (Ctrl-C to cancel) ")
+            except (EOFError, KeyboardInterrupt):
+                print()
+                raise InputError(f"{run_dir}: capture cancelled before it started; nothing written") from None
+        if args.force:  # audio of an earlier run in this folder
+            for old in list(run_dir.glob("audio.wav")) + list(run_dir.glob("audio-[0-9][0-9][0-9].wav")):
+                old.unlink()
         engine.start()
     except BaseException:
         if not existed:
@@ -212,7 +219,7 @@ def run(args) -> int:
             while not engine.wait(0.1 if plot is None else 0.05):
                 if plot is not None:
                     plot.update(engine.snapshot())
-        elif sys.stdout.isatty() and sys.stdin.isatty():
+        elif interactive:
             how = TerminalPanel(engine, title).run(plot)
         else:  # not a terminal: a plain line a second (on stderr when stdout carries the JSON)
             stream = sys.stderr if args.json else sys.stdout

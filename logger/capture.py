@@ -51,6 +51,10 @@ from .runlog import RunWriter, utc_iso, write_markers_copy
 
 #: frames whose frequency is not trusted for a baseline
 _NOT_FOR_BASELINE = _flags.UNUSABLE | _flags.LOW_SNR | _flags.OVERFLOW
+#: level meter: the peak reading falls this fast after a louder block (dB per second)
+PEAK_FALL_DB_PER_S = 20.0
+#: a clipping warning stays on this long after the last clipped block
+CLIP_HOLD_S = 1.0
 #: at most this many fault events are listed in run.json (all are counted)
 _MAX_FAULTS_LISTED = 1000
 
@@ -200,6 +204,8 @@ class CaptureEngine:
         self._adc_first: tuple[int, float] | None = None
         self._adc_last: tuple[int, float] | None = None
         self._baselines: list[dict] = []
+        self._peak_hold = 0.0
+        self._clip_until = -1
 
     # ------------------------------------------------------------------ public API
     @property
@@ -429,12 +435,17 @@ class CaptureEngine:
         if self.audio is not None:
             self.audio.write(x)
         peak = float(np.max(np.abs(x)))
+        # meter ballistics: instant rise, fall of PEAK_FALL_DB_PER_S; a clip stays lit CLIP_HOLD_S
+        dur = n / self.sample_rate_hz
+        self._peak_hold = max(peak, self._peak_hold * 10 ** (-PEAK_FALL_DB_PER_S * dur / 20))
+        if peak >= self.settings.clip_level:
+            self._clip_until = start + n + int(CLIP_HOLD_S * self.sample_rate_hz)
         frames = self._tracker.push(x)
         self._post(frames)
         with self._lock:
             s = self._snap
-            s.peak_dbfs = 20 * math.log10(peak) if peak > 0 else -math.inf
-            s.clipping = peak >= self.settings.clip_level
+            s.peak_dbfs = 20 * math.log10(self._peak_hold) if self._peak_hold > 0 else -math.inf
+            s.clipping = start + n <= self._clip_until
 
     def _gap(self, gap_start: int, n_lost: int, cause: str, detail: str) -> None:
         """Samples [gap_start, gap_start + n_lost) never reached us: log a gap row, restart the tracker."""
