@@ -56,6 +56,10 @@ MAINS_HZ = (50.0, 60.0)
 HUM_HARMONICS = 10
 #: a hum line must stand this far (power ratio, 10 dB) above the bins two either side of it
 HUM_PEAK_RATIO = 10.0
+#: other strong lines (hum, another oscillator) whose rectangular-window leakage is cancelled:
+#: at most this many per frame, and only those within this range of the tone's Hann peak power
+OTHER_LINES = 8
+OTHER_LINES_RANGE_DB = 60.0
 #: bins either side of each harmonic left out of the noise estimate
 NOISE_GUARD_BINS = 3
 #: the noise median uses about this many bins (every few bins: cheaper, and Hann neighbours are
@@ -377,6 +381,7 @@ class _Plan:
         s_pm, total = self.blocked_dtft(xpad, g)
         mean = total / n
         s_pm -= mean[:, None] * np.conj(dirichlet(g, n))
+        s_pm -= self._other_lines_leakage(power, spec, detect, k, fc, hvalid, g)
         f_fine = fc.copy()
         a1 = amp_h[:, 0]
         for _ in range(2):
@@ -438,6 +443,59 @@ class _Plan:
         amp_dbfs = np.where(have, amp_dbfs, np.nan)
         snr_db = np.where(have, snr_db, np.nan)
         return freq_hz, amp_dbfs, snr_db, fl_arr
+
+    def _other_lines_leakage(self, power, spec, detect, k, fc, hvalid, g):
+        """Leakage into the DTFTs at ``g`` of strong lines that are not the tone's cancelled harmonics.
+
+        Mains hum or a second oscillator leaks into a rectangular-window DTFT as 1/distance; the
+        strongest OTHER_LINES such lines (local maxima of the Hann spectrum within
+        OTHER_LINES_RANGE_DB of the tone) are located by Grandke's interpolation, their complex
+        amplitudes read through the Hann kernel, and their exact rectangular-window contribution
+        (line, its negative-frequency image, and its share of the subtracted frame mean) returned.
+        """
+        n = self.n
+        nf = power.shape[0]
+        rows = np.arange(nf)
+        thr = np.maximum(detect, power[rows, k].astype(float) * 10 ** (-OTHER_LINES_RANGE_DB / 10))
+        core = power[:, 2:-2]
+        peak = (core > power[:, 1:-3]) & (core >= power[:, 3:-1]) & (core > thr[:, None])
+        r, c = np.nonzero(peak)
+        c = c + 2
+        # leave out the tone and the harmonics already cancelled
+        h = np.rint(c / fc[r]).astype(int)
+        n_h = hvalid.shape[1]
+        cancelled = (h >= 1) & (h <= n_h) & (np.abs(c - h * fc[r]) <= 2.0)
+        cancelled &= hvalid[r, np.clip(h - 1, 0, n_h - 1)] | (h == 1)
+        r, c = r[~cancelled], c[~cancelled]
+        out = np.zeros((nf, 2), dtype=complex)
+        if r.size == 0:
+            return out
+        # strongest first within each frame, then keep OTHER_LINES per frame
+        order = np.lexsort((-power[r, c], r))
+        r, c = r[order], c[order]
+        rank = np.arange(r.size) - np.searchsorted(r, r)
+        keep = rank < OTHER_LINES
+        r, c, rank = r[keep], c[keep], rank[keep]
+        n_l = int(rank.max()) + 1
+        line_bin = np.full((nf, n_l), 2 * self.kmin)
+        line_on = np.zeros((nf, n_l), dtype=bool)
+        line_bin[r, rank] = c
+        line_on[r, rank] = True
+        mags = np.sqrt(np.stack([power[rows[:, None], line_bin + d] for d in (0, -1, 1)]).astype(float))
+        f_line = line_bin + grandke_hann(mags[0], mags[1], mags[2])
+        amp = np.where(line_on, spec[rows[:, None], line_bin].astype(complex) / hann_kernel(f_line - line_bin, n), 0.0)
+        mean_part = 2 * np.real(amp * dirichlet(f_line, n)) / n
+        # column-by-column sums: a frame's result does not depend on the chunk's column count
+        for j in range(2):
+            gj = g[:, j:j + 1]
+            terms = amp * dirichlet(f_line - gj, n) + np.conj(amp) * np.conj(dirichlet(f_line + gj, n))
+            acc = terms[:, 0].copy()
+            mu = mean_part[:, 0].copy()
+            for col in range(1, n_l):
+                acc += terms[:, col]
+                mu += mean_part[:, col]
+            out[:, j] = acc - mu * np.conj(dirichlet(g[:, j], n))
+        return out
 
     def _grandke(self, power, k):
         """Grandke's offset at bin k from the Hann power spectrum (magnitudes of three bins)."""
