@@ -601,7 +601,7 @@ class ScopeCsvSource:
         vcol = lay.volt_cols[self.channel]
         kw = dict(header=None, skiprows=lay.data_line - 1, usecols=[lay.time_col, vcol],
                   names=list(range(lay.n_fields)), chunksize=_CSV_CHUNK_ROWS, decimal=lay.decimal,
-                  encoding="latin-1", skip_blank_lines=True, dtype=str, na_filter=False, engine="c")
+                  encoding="latin-1", skip_blank_lines=False, dtype=str, na_filter=False, engine="c")
         if lay.sep is None:
             kw["sep"] = r"\s+"
         else:
@@ -610,12 +610,18 @@ class ScopeCsvSource:
             with pd.read_csv(self.path, **kw) as reader:
                 row0 = 0
                 for chunk in reader:
-                    yield row0, chunk[lay.time_col].to_numpy(), chunk[vcol].to_numpy()
+                    tcells, vcells = chunk[lay.time_col].to_numpy(), chunk[vcol].to_numpy()
+                    # blank lines are kept by the parser so that line numbers stay exact; drop them here
+                    keep = np.flatnonzero((tcells != "") | (vcells != ""))
+                    lines = lay.data_line + row0 + keep
+                    if len(keep) < len(tcells):
+                        tcells, vcells = tcells[keep], vcells[keep]
+                    yield lines, tcells, vcells
                     row0 += len(chunk)
         except (pd.errors.ParserError, ValueError) as exc:
             raise InputError(f"{self.name}: malformed data ({_one_line(exc)})") from None
 
-    def _numbers(self, row0: int, cells: np.ndarray, what: str) -> np.ndarray:
+    def _numbers(self, lines: np.ndarray, cells: np.ndarray, what: str) -> np.ndarray:
         import pandas as pd
 
         if self.layout.decimal == ",":
@@ -625,7 +631,7 @@ class ScopeCsvSource:
         if bad.any():
             k = int(np.argmax(bad))
             cell = str(cells[k]).strip()
-            line = self.layout.data_line + row0 + k
+            line = int(lines[k])
             if not cell:
                 why = "empty cell"
             elif np.isnan(vals[k]) and cell.lower().lstrip("+-") not in ("nan",):
@@ -645,9 +651,9 @@ class ScopeCsvSource:
         t_first = t_last = math.nan
         dt0 = math.nan
         peak = 0.0
-        for row0, tcells, vcells in chunks:
-            t = self._numbers(row0, tcells, "time") * lay.time_scale
-            v = self._numbers(row0, vcells, "voltage") * lay.volt_scales[self.channel]
+        for lines, tcells, vcells in chunks:
+            t = self._numbers(lines, tcells, "time") * lay.time_scale
+            v = self._numbers(lines, vcells, "voltage") * lay.volt_scales[self.channel]
             if len(t) == 0:
                 continue
             if n == 0:
@@ -661,7 +667,7 @@ class ScopeCsvSource:
                 back = steps <= 0
                 if back.any():
                     k = int(np.argmax(back))
-                    line = lay.data_line + row0 + k + offset
+                    line = int(lines[k + offset])
                     prev = t_last if (n and k == 0) else t[k + offset - 1]
                     word = "repeats" if steps[k] == 0 else "goes backwards"
                     raise InputError(f"{self.name}: line {line}: time {word} "
@@ -670,7 +676,7 @@ class ScopeCsvSource:
                     off = np.abs(steps - dt0) > 0.25 * dt0
                     if off.any():
                         k = int(np.argmax(off))
-                        line = lay.data_line + row0 + k + offset
+                        line = int(lines[k + offset])
                         raise InputError(f"{self.name}: line {line}: non-uniform time step "
                                          f"{steps[k]:.6g} s (the file starts with {dt0:.6g} s steps)")
             t_last = float(t[-1])
@@ -698,8 +704,8 @@ class ScopeCsvSource:
         pending: list[np.ndarray] = []
         have = 0
         with contextlib.closing(self._chunks()) as chunks:
-            for row0, _t, vcells in chunks:
-                v = self._numbers(row0, vcells, "voltage") * scale
+            for lines, _t, vcells in chunks:
+                v = self._numbers(lines, vcells, "voltage") * scale
                 pending.append(v)
                 have += len(v)
                 if have >= block_frames:
