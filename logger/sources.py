@@ -601,7 +601,7 @@ class ScopeCsvSource:
         vcol = lay.volt_cols[self.channel]
         kw = dict(header=None, skiprows=lay.data_line - 1, usecols=[lay.time_col, vcol],
                   names=list(range(lay.n_fields)), chunksize=_CSV_CHUNK_ROWS, decimal=lay.decimal,
-                  encoding="latin-1", skip_blank_lines=False, dtype=str, na_filter=False, engine="c")
+                  encoding="latin-1", skip_blank_lines=False, na_filter=False, engine="c")
         if lay.sep is None:
             kw["sep"] = r"\s+"
         else:
@@ -612,11 +612,13 @@ class ScopeCsvSource:
                 for chunk in reader:
                     tcells, vcells = chunk[lay.time_col].to_numpy(), chunk[vcol].to_numpy()
                     # blank lines are kept by the parser so that line numbers stay exact; drop them here
-                    keep = np.flatnonzero((tcells != "") | (vcells != ""))
-                    lines = lay.data_line + row0 + keep
-                    if len(keep) < len(tcells):
-                        tcells, vcells = tcells[keep], vcells[keep]
-                    yield lines, tcells, vcells
+                    # clean chunks arrive as numbers from the C parser; any odd cell makes a column text
+                    if tcells.dtype.kind not in "fiu" or vcells.dtype.kind not in "fiu":
+                        keep = np.flatnonzero((tcells.astype(str) != "") | (vcells.astype(str) != ""))
+                        tcells, vcells = tcells[keep].astype(str), vcells[keep].astype(str)
+                    else:
+                        keep = np.arange(len(tcells))
+                    yield lay.data_line + row0 + keep, tcells, vcells
                     row0 += len(chunk)
         except (pd.errors.ParserError, ValueError) as exc:
             raise InputError(f"{self.name}: malformed data ({_one_line(exc)})") from None
@@ -624,9 +626,12 @@ class ScopeCsvSource:
     def _numbers(self, lines: np.ndarray, cells: np.ndarray, what: str) -> np.ndarray:
         import pandas as pd
 
-        if self.layout.decimal == ",":
-            cells = np.char.replace(cells.astype(str), ",", ".")
-        vals = pd.to_numeric(pd.Series(cells), errors="coerce").to_numpy(float)
+        if cells.dtype.kind in "fiu":
+            vals = cells.astype(float)
+        else:
+            if self.layout.decimal == ",":
+                cells = np.char.replace(cells.astype(str), ",", ".")
+            vals = pd.to_numeric(pd.Series(cells), errors="coerce").to_numpy(float)
         bad = ~np.isfinite(vals)
         if bad.any():
             k = int(np.argmax(bad))

@@ -271,6 +271,10 @@ def test_scope_two_voltage_columns_channel(tmp_path):
      + [f"{i * 1e-3:.6f},0.1" for i in range(31, 60)], "line 32: non-finite value 'inf'"),
     (["Time,Volt"] + [f"{i * 1e-3:.6f},0.1" for i in range(30)] + ["", "0.030,0.1", "", "0.0305,0.1"]
      + [f"{i * 1e-3:.6f},0.1" for i in range(32, 60)], "line 35: non-uniform time step"),
+    (["Time,Volt"] + [f"{i * 1e-3:.6f},0.1" for i in range(30)] + ["0.030,True"]
+     + [f"{i * 1e-3:.6f},0.1" for i in range(31, 60)], "line 32: non-numeric cell 'True'"),
+    (["Time,Volt"] + [f"{i * 1e-3:.6f},0.1" for i in range(30)] + ["0.030,"]
+     + [f"{i * 1e-3:.6f},0.1" for i in range(31, 60)], "line 32: empty cell in the voltage column"),
     (["Time,Volt", "0.0,0.1"], "only one data row"),
     (["Model,X", "Serial,Y"], "no numeric data rows"),
 ])
