@@ -53,8 +53,6 @@ def make_source(minutes: float, rate: float):
 
     # a slowly drifting oscillator with a target pass every 10 minutes (a 0.5 Hz dip for 20 s)
     def freq(t):
-        import numpy as np
-
         dip = ((t % 600.0) > 300.0) & ((t % 600.0) < 320.0)
         return 5000.0 + 1e-4 * t - 0.5 * dip
 

@@ -82,6 +82,7 @@ def test_log_round_trip_through_read_log(tmp_path):
     log = read_log(tmp_path / "run")
     assert not log.interrupted
     assert len(log.table) == summary["frames"]
+    assert not np.any(log.table["flags"].to_numpy() & (flags.NO_TONE | flags.CLIPPED))
     meta = log.meta
     assert meta["status"] == "complete"
     assert meta["baseline"]["method"] == "median over the markers' baseline stretches"
