@@ -104,10 +104,10 @@ class CalibrationResult:
 
 def _baseline_only(log: FrequencyLog, baselines: list[Segment], usable: np.ndarray) -> np.ndarray:
     f = np.full(log.t_s.size, np.nan)
-    t = log.t_s
+    t, freq = log.t_s, log.freq_hz
     for b in baselines:
-        sel = usable & (t >= b.used_start_s) & (t <= b.used_end_s)
-        f[sel] = log.freq_hz[sel]
+        i0, i1 = int(np.searchsorted(t, b.used_start_s, "left")), int(np.searchsorted(t, b.used_end_s, "right"))
+        f[i0:i1] = np.where(usable[i0:i1], freq[i0:i1], np.nan)
     return f
 
 
@@ -132,7 +132,7 @@ def _prediction(coil, spec, freq_hz: float, pts: list[Point]) -> Prediction:
 
 
 def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None = None, *,
-                settle_s: float = DEFAULT_SETTLE_S, threshold_hz: float | None = None,
+                settle_s: float | None = None, threshold_hz: float | None = None,
                 k: float = DEFAULT_K, coil=None, target_models: dict | None = None,
                 polarity: str = "normal", reference: dict[str, str] | None = None,
                 fit_offset: bool = False, n_boot: int = DEFAULT_BOOTSTRAP,
@@ -143,7 +143,9 @@ def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None 
     ----------
     path : run folder or log CSV
     markers_path : markers CSV to use instead of the run's own markers.csv
-    settle_s : time dropped at each end of every stretch (s)
+    settle_s : time dropped at each end of every stretch (s); None: 0 for runs recorded by
+        ``coilshift calibrate`` (run.json has a ``calibration`` entry: its stretches start settled),
+        else :data:`~coilshift.analysis.steps.DEFAULT_SETTLE_S`
     threshold_hz : detection threshold; default ``k`` x the baseline Allan deviation at the dwell
     k : threshold factor on the noise
     coil : a ``CoilReport`` (from ``analyse_coil``); its mean radius fixes R in the fits
@@ -167,7 +169,7 @@ def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None 
         raise InputError(f"threshold: must be a positive number of hertz, got {threshold_hz}")
     if not (math.isfinite(k) and k > 0):
         raise InputError(f"noise factor: must be positive, got {k}")
-    if not (math.isfinite(settle_s) and settle_s >= 0):
+    if settle_s is not None and not (math.isfinite(settle_s) and settle_s >= 0):
         raise InputError(f"settling time: must be zero or positive seconds, got {settle_s}")
     target_models = dict(target_models or {})
     reference = dict(reference or {})
@@ -178,6 +180,8 @@ def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None 
         raise InputError("target models need a coil (--coil FILE) to predict a curve")
     log = read_log(path)
     src = str(path)
+    if settle_s is None:
+        settle_s = 0.0 if isinstance(log.meta.get("calibration"), dict) else DEFAULT_SETTLE_S
     if markers_path is not None:
         markers = read_markers(markers_path)
         check_within(markers, float(log.t_s[-1]) + 1.0, str(markers_path))

@@ -191,11 +191,13 @@ def segment_stats(t_s: np.ndarray, freq_hz: np.ndarray, usable: np.ndarray, mark
     dur = marker.end_s - marker.start_s
     trim = min(max(settle_s, 0.0), MAX_TRIM_FRACTION * dur)
     lo, hi = marker.start_s + trim, marker.end_s - trim
-    sel = usable & (t_s >= lo) & (t_s <= hi)
-    if int(sel.sum()) < MIN_FRAMES:
+    # t_s increases (read_log checks), so a stretch is one slice: no full-length masks per marker
+    i0, i1 = int(np.searchsorted(t_s, lo, "left")), int(np.searchsorted(t_s, hi, "right"))
+    ok = usable[i0:i1]
+    if int(ok.sum()) < MIN_FRAMES:
         return None
-    stat = correlated_mean(freq_hz[sel])
-    return Segment(marker, float(t_s[sel].mean()), lo, hi, stat)
+    stat = correlated_mean(freq_hz[i0:i1][ok])
+    return Segment(marker, float(t_s[i0:i1][ok].mean()), lo, hi, stat)
 
 
 def _note(seg: Segment) -> str:
@@ -213,7 +215,7 @@ def compute_steps(t_s: np.ndarray, freq_hz: np.ndarray, markers: list[Marker],
 
     Parameters
     ----------
-    t_s, freq_hz : the log (Hz, s)
+    t_s, freq_hz : the log (s, increasing; Hz)
     markers : stretches; ``baseline`` rows are target-free
     usable : mask of frames whose frequency can be used (all finite frames when None)
     settle_s : time dropped at each end of each stretch

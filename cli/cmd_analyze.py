@@ -62,10 +62,11 @@ def add_analysis_options(p: argparse.ArgumentParser, settle: bool = True) -> Non
                    help=f"threshold = K x noise at the dwell time (default {DEFAULT_K:g}: about 4 standard "
                         "deviations of a bracketed reading, ~4e-5 false alarms per reading)")
     if settle:
-        g.add_argument("--settle", type=_non_negative, default=DEFAULT_SETTLE_S, metavar="S",
+        g.add_argument("--settle", type=_non_negative, default=None, metavar="S",
                        dest="analysis_settle_s",
-                       help=f"settling seconds dropped at each end of every stretch (default {DEFAULT_SETTLE_S:g}; "
-                            "never more than a quarter of a stretch)")
+                       help=f"settling seconds dropped at each end of every stretch, never more than a quarter "
+                            f"of it (default {DEFAULT_SETTLE_S:g}; 0 for runs made by 'calibrate', which start "
+                            "each stretch settled)")
     g.add_argument("--coil", metavar="FILE", help="coil description (JSON): fixes R in the fit; needed for "
                                                   "--target-model")
     g.add_argument("--target-model", type=_target_model, action="append", default=[], metavar="NAME=SPEC",
@@ -110,7 +111,7 @@ def analysis_kwargs(args) -> dict:
             models[name] = parse_target_spec(spec)
     if args.bootstrap < 0:
         raise InputError(f"--bootstrap must be 0 or more, got {args.bootstrap}")
-    return {"settle_s": getattr(args, "analysis_settle_s", 0.0), "threshold_hz": args.threshold_hz, "k": args.noise_factor, "coil": coil,
+    return {"settle_s": getattr(args, "analysis_settle_s", None), "threshold_hz": args.threshold_hz, "k": args.noise_factor, "coil": coil,
             "target_models": models, "polarity": args.polarity, "reference": dict(args.reference_target),
             "fit_offset": args.fit_offset, "n_boot": args.bootstrap, "seed": args.seed}
 

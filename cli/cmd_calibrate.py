@@ -125,8 +125,8 @@ def run(args) -> int:
         return 130 if interrupted else 1
     from coilshift.analysis.calibration import analyse_run
 
-    # the guide marked only settled stretches, so nothing more is trimmed
-    res = analyse_run(run_dir, **{**kwargs, "settle_s": 0.0})
+    # run.json has the "calibration" entry: the analysis knows the stretches start settled
+    res = analyse_run(run_dir, **kwargs)
     report_results([res], argparse.Namespace(output=args.report_dir, force=args.force, json=args.json))
     if interrupted:
         return 130
