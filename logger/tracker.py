@@ -380,12 +380,13 @@ class _Plan:
         # DTFT of the frame minus its mean: subtract the mean's kernel analytically
         s_pm, total = self.blocked_dtft(xpad, g)
         mean = total / n
-        s_pm -= mean[:, None] * np.conj(dirichlet(g, n))
-        s_pm -= self._other_lines_leakage(power, spec, detect, k, fc, hvalid, g)
+        wg_conj = np.conj(dirichlet(g, n))
+        s_pm -= mean[:, None] * wg_conj
+        s_pm -= self._other_lines_leakage(power, spec, detect, k, fc, hvalid, g, wg_conj)
         f_fine = fc.copy()
         a1 = amp_h[:, 0]
         for _ in range(2):
-            f_fine, a1 = self._am_step(s_pm, g, f_fine, a1, amp_h, hvalid)
+            f_fine, a1 = self._am_step(s_pm, g, wg_conj, f_fine, a1, amp_h, hvalid)
         freq_bins = f_fine
         amp = 2 * np.abs(a1)
 
@@ -444,7 +445,7 @@ class _Plan:
         snr_db = np.where(have, snr_db, np.nan)
         return freq_hz, amp_dbfs, snr_db, fl_arr
 
-    def _other_lines_leakage(self, power, spec, detect, k, fc, hvalid, g):
+    def _other_lines_leakage(self, power, spec, detect, k, fc, hvalid, g, wg_conj):
         """Leakage into the DTFTs at ``g`` of strong lines that are not the tone's cancelled harmonics.
 
         Mains hum or a second oscillator leaks into a rectangular-window DTFT as 1/distance; the
@@ -457,10 +458,12 @@ class _Plan:
         nf = power.shape[0]
         rows = np.arange(nf)
         thr = np.maximum(detect, power[rows, k].astype(float) * 10 ** (-OTHER_LINES_RANGE_DB / 10))
-        core = power[:, 2:-2]
-        peak = (core > power[:, 1:-3]) & (core >= power[:, 3:-1]) & (core > thr[:, None])
-        r, c = np.nonzero(peak)
+        # threshold first (one pass, few survivors), then test only those for a local maximum
+        r, c = np.nonzero(power[:, 2:-2] > thr[:, None].astype(np.float32))
         c = c + 2
+        top = power[r, c]
+        local = (top > power[r, c - 1]) & (top >= power[r, c + 1])
+        r, c = r[local], c[local]
         # leave out the tone and the harmonics already cancelled
         h = np.rint(c / fc[r]).astype(int)
         n_h = hvalid.shape[1]
@@ -484,17 +487,19 @@ class _Plan:
         mags = np.sqrt(np.stack([power[rows[:, None], line_bin + d] for d in (0, -1, 1)]).astype(float))
         f_line = line_bin + grandke_hann(mags[0], mags[1], mags[2])
         amp = np.where(line_on, spec[rows[:, None], line_bin].astype(complex) / hann_kernel(f_line - line_bin, n), 0.0)
-        mean_part = 2 * np.real(amp * dirichlet(f_line, n)) / n
+        g0, g1 = g[:, :1], g[:, 1:]
+        ker = dirichlet(np.concatenate([f_line, f_line - g0, f_line - g1, f_line + g0, f_line + g1], axis=1), n)
+        k_f, k_m0, k_m1, k_p0, k_p1 = (ker[:, i * n_l:(i + 1) * n_l] for i in range(5))
+        mean_part = 2 * np.real(amp * k_f) / n
         # column-by-column sums: a frame's result does not depend on the chunk's column count
-        for j in range(2):
-            gj = g[:, j:j + 1]
-            terms = amp * dirichlet(f_line - gj, n) + np.conj(amp) * np.conj(dirichlet(f_line + gj, n))
+        for j, (k_minus, k_plus) in enumerate(((k_m0, k_p0), (k_m1, k_p1))):
+            terms = amp * k_minus + np.conj(amp) * np.conj(k_plus)
             acc = terms[:, 0].copy()
             mu = mean_part[:, 0].copy()
             for col in range(1, n_l):
                 acc += terms[:, col]
                 mu += mean_part[:, col]
-            out[:, j] = acc - mu * np.conj(dirichlet(g[:, j], n))
+            out[:, j] = acc - mu * wg_conj[:, j]
         return out
 
     def _grandke(self, power, k):
@@ -518,8 +523,11 @@ class _Plan:
         fallback = np.argmax(p, axis=1)
         return np.where(np.isfinite(dist[np.arange(p.shape[0]), best]), best, fallback)
 
-    def _am_step(self, s_pm, g, f_est, a1, amp_h, hvalid):
-        """One closed-form AM step on DTFTs at g = (fc+1/2, fc-1/2) after removing known leakage."""
+    def _am_step(self, s_pm, g, wg_conj, f_est, a1, amp_h, hvalid):
+        """One closed-form AM step on DTFTs at g = (fc+1/2, fc-1/2) after removing known leakage.
+
+        ``wg_conj`` is conj(dirichlet(g)), the kernel of a constant at the two evaluation points.
+        """
         n = self.n
         n_h = amp_h.shape[1]
         hf = f_est[:, None] * self.harm[None, :n_h]  # (F, H)
@@ -527,26 +535,30 @@ class _Plan:
         ah[:, 0] = a1
         ah = np.where(hvalid, ah, 0.0)
         ah_c = np.conj(ah)
+        g0, g1 = g[:, :1], g[:, 1:]
+        # every kernel value this step needs, in one call: at hf, hf + g, hf - g
+        ker = dirichlet(np.concatenate([hf, hf + g0, hf + g1, hf - g0, hf - g1], axis=1), n)
+        k_hf, k_p0, k_p1, k_m0, k_m1 = (ker[:, i * n_h:(i + 1) * n_h] for i in range(5))
         # mean of the modelled periodic part (the frame mean was subtracted before the DTFT);
         # the kernel at -nu is the conjugate of the kernel at nu
-        mean_terms = 2 * np.real(ah * dirichlet(hf, n))
+        mean_terms = 2 * np.real(ah * k_hf)
         # leakage at each evaluation point: images of fundamental and harmonics, and the
-        # positive-frequency harmonics
+        # positive-frequency harmonics (not the fundamental itself)
         leak_terms = []
-        for j in range(2):
-            gj = g[:, j:j + 1]
-            t = ah_c * np.conj(dirichlet(hf + gj, n))
-            t[:, 1:] += ah[:, 1:] * dirichlet(hf[:, 1:] - gj, n)
+        for k_plus, k_minus in ((k_p0, k_m0), (k_p1, k_m1)):
+            t = ah_c * np.conj(k_plus)
+            t[:, 1:] += ah[:, 1:] * k_minus[:, 1:]
             leak_terms.append(t)
         # column-by-column sums keep each frame's result independent of the chunk's column count
         mu = mean_terms[:, 0].copy()
-        leak = [leak_terms[0][:, 0].copy(), leak_terms[1][:, 0].copy()]
+        leak0, leak1 = leak_terms[0][:, 0].copy(), leak_terms[1][:, 0].copy()
         for h in range(1, n_h):
             mu += mean_terms[:, h]
-            leak[0] += leak_terms[0][:, h]
-            leak[1] += leak_terms[1][:, h]
+            leak0 += leak_terms[0][:, h]
+            leak1 += leak_terms[1][:, h]
         mu /= n
-        p_plus, p_minus = (s_pm[:, j] - leak[j] + mu * np.conj(dirichlet(g[:, j], n)) for j in range(2))
+        p_plus = s_pm[:, 0] - leak0 + mu * wg_conj[:, 0]
+        p_minus = s_pm[:, 1] - leak1 + mu * wg_conj[:, 1]
         with np.errstate(divide="ignore", invalid="ignore"):
             rho = -(p_plus / p_minus) * self.am_phase
             q = np.real((rho + 1) / (rho - 1))
@@ -554,8 +566,8 @@ class _Plan:
         r = np.where(np.isfinite(r), np.clip(r, -0.5, 0.5), 0.0)
         f_new = (g[:, 0] - 0.5) + r
         # least-squares amplitude from both samples (their kernels have nearly opposite phase)
-        w_plus = dirichlet(f_new - g[:, 0], n)
-        w_minus = dirichlet(f_new - g[:, 1], n)
+        w = dirichlet(f_new[:, None] - g, n)
+        w_plus, w_minus = w[:, 0], w[:, 1]
         with np.errstate(divide="ignore", invalid="ignore"):
             a_new = (np.conj(w_plus) * p_plus + np.conj(w_minus) * p_minus) / (
                 np.abs(w_plus) ** 2 + np.abs(w_minus) ** 2)
