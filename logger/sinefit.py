@@ -48,6 +48,8 @@ def _solve_normal(cols, x):
     scale = np.sqrt(np.einsum("fpp->fp", gram))
     scale[scale == 0] = 1.0
     g = gram / (scale[:, :, None] * scale[:, None, :])
+    # a whisker of ridge keeps an all-zero column (silent frame) solvable: its coefficient is 0
+    g += 1e-13 * np.eye(g.shape[-1])
     sol = np.linalg.solve(g, (rhs / scale)[..., None])[..., 0]
     return sol / scale
 
@@ -101,21 +103,24 @@ def fit_sine4_frames(frames, sample_rate_hz: float, freq_hz_init, max_iter: int 
     t = np.arange(n) / sample_rate_hz
     a, b, c = fit_sine3_frames(x, sample_rate_hz, f)
     converged = np.zeros(nrow, dtype=bool)
+    active = np.ones(nrow, dtype=bool)  # rows stop iterating once done, so each row's result is its own
     it = 0
     for it in range(1, max_iter + 1):
-        ph = 2 * np.pi * f[:, None] * t[None, :]
+        idx = np.flatnonzero(active)
+        ph = 2 * np.pi * f[idx, None] * t[None, :]
         cs, sn = np.cos(ph), np.sin(ph)
-        dcol = t[None, :] * (-a[:, None] * sn + b[:, None] * cs)
+        dcol = t[None, :] * (-a[idx, None] * sn + b[idx, None] * cs)
         cols = np.stack([cs, sn, np.ones_like(ph), dcol], axis=1)
-        sol = _solve_normal(cols, x)
-        a, b, c = sol[:, 0], sol[:, 1], sol[:, 2]
+        sol = _solve_normal(cols, x[idx])
+        a[idx], b[idx], c[idx] = sol[:, 0], sol[:, 1], sol[:, 2]
         step_hz = sol[:, 3] / (2 * np.pi)
         # a wild step means the start was too far off; refuse it rather than jump to another tone
         wild = ~np.isfinite(step_hz) | (np.abs(step_hz) > sample_rate_hz / n)
-        step_hz = np.where(wild, 0.0, step_hz)
-        f = f + step_hz
-        converged = ~wild & (np.abs(step_hz) < tol_hz)
-        if converged.all():
+        f[idx] += np.where(wild, 0.0, step_hz)
+        done = ~wild & (np.abs(step_hz) < tol_hz)
+        converged[idx] = done
+        active[idx] = ~(done | wild)
+        if not active.any():
             break
     # the amplitudes belong to the last frequency
     a, b, c = fit_sine3_frames(x, sample_rate_hz, f)

@@ -390,11 +390,14 @@ class _Plan:
         freq_bins = f_fine
         amp = 2 * np.abs(a1)
 
-        if s.refine:
-            f_hz, ca, cb, _, _, conv = fit_sine4_frames(frames, self.fs, freq_bins * self.df)
-            ok = conv & (np.abs(f_hz / self.df - freq_bins) < 0.5)
-            freq_bins = np.where(ok, f_hz / self.df, freq_bins)
-            amp = np.where(ok, np.hypot(ca, cb), amp)
+        if s.refine and have.any():
+            fit_rows = np.flatnonzero(have)
+            f_hz, ca, cb, _, _, conv = fit_sine4_frames(frames[fit_rows], self.fs, freq_bins[fit_rows] * self.df)
+            ok = conv & (np.abs(f_hz / self.df - freq_bins[fit_rows]) < 0.5)
+            freq_bins = freq_bins.copy()
+            freq_bins[fit_rows[ok]] = f_hz[ok] / self.df
+            amp = amp.copy()
+            amp[fit_rows[ok]] = np.hypot(ca, cb)[ok]
 
         # noise with the tone's harmonics left out: the median of the remaining bins sits at rank
         # (nd - above + below) / 2 of the full sorted set, where above/below count the left-out
