@@ -629,7 +629,8 @@ class FrameTracker:
         x = np.asarray(block, dtype=np.float64)
         if x.ndim != 1:
             raise InputError(f"tracker input: expected a 1-D block of samples, got shape {x.shape}")
-        if x.size and not np.isfinite(x).all():
+        # a sum is a cheap pass that turns any NaN or infinity into a non-finite result
+        if x.size and not np.isfinite(x.sum()):
             raise InputError("tracker input: block contains NaN or infinite samples")
         if gap_before:
             self._buf = np.zeros(0)
@@ -652,7 +653,8 @@ class FrameTracker:
         used = self._buf[off:off + (count - 1) * hop + n]
         windows = sliding_window_view(used, n)[::hop]
         # frames holding a clipped sample, from one pass over the samples (not one per frame)
-        hits = np.flatnonzero(np.abs(used) >= self.settings.clip_level)
+        level = self.settings.clip_level
+        hits = np.flatnonzero((used >= level) | (used <= -level))
         starts_rel = np.arange(count) * hop
         clipped = np.searchsorted(hits, starts_rel) < np.searchsorted(hits, starts_rel + n)
         tables = []

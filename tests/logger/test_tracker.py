@@ -202,21 +202,31 @@ def test_clipped_tone_flagged_and_still_tracked():
 
 
 # ----------------------------------------------------------------------------- streaming
-def test_streaming_equals_batch_for_any_cut():
-    x = noisy_tone(1234.5, 1.5, 30.0, seed=12) + 0.05 * pulse_wave(300.0, 0.3, 1.5)[0]
-    batch = track_array(x, FS)
+@pytest.mark.parametrize(
+    "fs, settings",
+    [
+        (FS, TrackerSettings()),
+        (44100.0, TrackerSettings(frame_ms=50.0, hop_ms=10.0)),  # frame length not a multiple of 64
+        (FS, TrackerSettings(refine=True, band_hz=(200.0, 5000.0))),
+    ],
+)
+def test_streaming_equals_batch_for_any_cut(fs, settings):
+    t = np.arange(int(0.8 * fs)) / fs
+    x = 0.3 * np.cos(2 * np.pi * 1234.5 * t) + 0.02 * np.cos(2 * np.pi * 50 * t) + 0.3 * (np.sin(2 * np.pi * 300.0 * t) > 0.4)
+    x += 0.01 * np.random.default_rng(12).standard_normal(t.size)
+    batch = track_array(x, fs, settings)
     rng = np.random.default_rng(0)
     for _ in range(3):
-        tracker = FrameTracker(FS)
+        tracker = FrameTracker(fs, settings)
         cuts = np.sort(rng.choice(np.arange(1, x.size), size=40, replace=False))
         parts = [tracker.push(part) for part in np.split(x, cuts)]
         parts.append(tracker.finish())
         streamed = type(batch).concat(parts)
         for name in ("t_s", "freq_hz", "amp_dbfs", "snr_db", "flags"):
             np.testing.assert_array_equal(getattr(streamed, name), getattr(batch, name), err_msg=name)
-    # tiny blocks (one hop's worth split unevenly) give the same frames too
-    tracker = FrameTracker(FS)
-    small = [tracker.push(x[i:i + 333]) for i in range(0, int(0.4 * FS), 333)]
+    # tiny blocks (a third of a hop) give the same frames too
+    tracker = FrameTracker(fs, settings)
+    small = [tracker.push(x[i:i + 333]) for i in range(0, int(0.4 * fs), 333)]
     got = type(batch).concat(small)
     np.testing.assert_array_equal(got.freq_hz, batch.freq_hz[:len(got)])
 
