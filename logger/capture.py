@@ -149,6 +149,7 @@ class CaptureEngine:
     append_interval_s : rows are appended (and so flushed) at least this often
     fsync_interval_s : handed to the run writer
     stall_timeout_s : a source that delivers nothing for this long has failed
+    track_batch_s : audio is handed to the tracker in batches of about this length
     tracker_factory : ``f(sample_rate_hz, settings)`` making a streaming tracker; default
         :class:`coilshift.logger.tracker.FrameTracker`
     """
@@ -156,7 +157,7 @@ class CaptureEngine:
     def __init__(self, source, run_dir: str | Path, settings, corrections=None, *, baseline_s: float = 2.0,
                  save_audio: bool = False, max_seconds: float | None = None, meta: dict | None = None,
                  queue_blocks: int = 4000, append_interval_s: float = 0.25, fsync_interval_s: float = 0.75,
-                 stall_timeout_s: float = 3.0, tracker_factory=None):
+                 stall_timeout_s: float = 3.0, track_batch_s: float = 0.05, tracker_factory=None):
         if baseline_s <= 0:
             raise InputError(f"--baseline-s must be > 0, got {baseline_s}")
         if max_seconds is not None and max_seconds <= 0:
@@ -173,6 +174,7 @@ class CaptureEngine:
         self.fsync_interval_s = fsync_interval_s
         self.stall_timeout_s = stall_timeout_s
         self._tracker_factory = tracker_factory
+        self.track_batch_s = track_batch_s
         self.sample_rate_hz = math.nan
         self.writer: RunWriter | None = None
         self.audio = None
@@ -205,6 +207,9 @@ class CaptureEngine:
         self._adc_last: tuple[int, float] | None = None
         self._baselines: list[dict] = []
         self._peak_hold = 0.0
+        self._batch: list[np.ndarray] = []
+        self._batch_n = 0
+        self._batch_samples = 1
         self._clip_until = -1
 
     # ------------------------------------------------------------------ public API
@@ -229,6 +234,7 @@ class CaptureEngine:
         self.source.open(self._deliver, self._fail)
         try:
             self.sample_rate_hz = float(self.source.sample_rate_hz)
+            self._batch_samples = max(1, int(self.track_batch_s * self.sample_rate_hz))
             if self._tracker_factory is None:
                 from .tracker import FrameTracker
 
@@ -422,7 +428,6 @@ class CaptureEngine:
         n = block.shape[0]
         if n == 0:
             return
-        x = np.asarray(block, dtype=np.float64)
         if adc and math.isfinite(adc) and adc > 0:
             if self._adc_first is None:
                 self._adc_first = (start, float(adc))
@@ -433,22 +438,34 @@ class CaptureEngine:
                                "input overflow reported by the audio stream")
             self._overflow_spans.append((start - 1, start + n))
         if self.audio is not None:
-            self.audio.write(x)
-        peak = float(np.max(np.abs(x)))
+            self.audio.write(block)
+        peak = float(np.max(np.abs(block)))
         # meter ballistics: instant rise, fall of PEAK_FALL_DB_PER_S; a clip stays lit CLIP_HOLD_S
         dur = n / self.sample_rate_hz
         self._peak_hold = max(peak, self._peak_hold * 10 ** (-PEAK_FALL_DB_PER_S * dur / 20))
         if peak >= self.settings.clip_level:
             self._clip_until = start + n + int(CLIP_HOLD_S * self.sample_rate_hz)
-        frames = self._tracker.push(x)
-        self._post(frames)
+        # the tracker works on batches: one call per block would cost several times the CPU
+        self._batch.append(block)
+        self._batch_n += n
+        if self._batch_n >= self._batch_samples:
+            self._push_batch()
         with self._lock:
             s = self._snap
             s.peak_dbfs = 20 * math.log10(self._peak_hold) if self._peak_hold > 0 else -math.inf
             s.clipping = start + n <= self._clip_until
 
+    def _push_batch(self) -> None:
+        if not self._batch:
+            return
+        x = np.concatenate(self._batch).astype(np.float64) if len(self._batch) > 1 else \
+            np.asarray(self._batch[0], dtype=np.float64)
+        self._batch, self._batch_n = [], 0
+        self._post(self._tracker.push(x))
+
     def _gap(self, gap_start: int, n_lost: int, cause: str, detail: str) -> None:
         """Samples [gap_start, gap_start + n_lost) never reached us: log a gap row, restart the tracker."""
+        self._push_batch()  # audio before the gap belongs to the old tracker
         fs = self.sample_rate_hz
         self._counts["gaps"] += 1
         self._counts["lost_samples"] += n_lost
@@ -608,6 +625,7 @@ class CaptureEngine:
             self._gap(self._delivered - lost, lost, "queue_overrun", "samples dropped at the end of the run")
         if not self._ended_by:
             self._ended_by = "stopped"
+        self._push_batch()
         self._post(self._tracker.finish())
         if self._window is not None and self._window.held:
             self._close_window(final=True)
