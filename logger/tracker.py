@@ -462,7 +462,9 @@ class _Plan:
         rows = np.arange(nf)
         thr = np.maximum(detect, power[rows, k].astype(float) * 10 ** (-OTHER_LINES_RANGE_DB / 10))
         # threshold first (one pass, few survivors), then test only those for a local maximum
-        r, c = np.nonzero(power[:, 2:-2] > thr[:, None].astype(np.float32))
+        above = power[:, 2:-2] > thr[:, None].astype(np.float32)
+        # flat indices are far cheaper to collect than 2-D ones
+        r, c = np.divmod(np.flatnonzero(above), above.shape[1])
         c = c + 2
         top = power[r, c]
         local = (top > power[r, c - 1]) & (top >= power[r, c + 1])
