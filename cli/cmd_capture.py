@@ -3,9 +3,11 @@
 from __future__ import annotations
 
 import argparse
+import io
 import json
 import os
 import sys
+import textwrap
 from pathlib import Path
 
 ORDER = 20
@@ -122,7 +124,7 @@ def show_caution_once(err=None) -> bool:
         state = {}
     if state.get(_STATE_KEY):
         return False
-    err.write(WIRING_CAUTION + "\n(shown once; see also 'coilshift capture --help')\n\n")
+    err.write(textwrap.fill(WIRING_CAUTION, width=78) + "\n(shown once; see also 'coilshift capture --help')\n\n")
     err.flush()
     state[_STATE_KEY] = True
     try:
@@ -153,6 +155,15 @@ def _synthetic_source(spec: str, rate: float | None, seconds: float | None):
     return PacedSource(ToneSource(steps, duration, fs, amplitude=0.5, snr_db=50.0, seed=1), block_frames=512)
 
 
+def _has_termios() -> bool:
+    try:  # single-key input needs a POSIX terminal; elsewhere the plain readout is used
+        import termios  # noqa: F401
+        import tty  # noqa: F401
+    except ImportError:
+        return False
+    return True
+
+
 def run(args) -> int:
     import signal
 
@@ -177,12 +188,13 @@ def run(args) -> int:
     settings, corr = tracking_from_args(args, source.sample_rate_hz)
     for line in corr.warnings():  # e.g. an even Nyquist zone inverts the apparent shift
         print(f"coilshift: {line}", file=sys.stderr)
-    interactive = not args.no_view and sys.stdout.isatty() and sys.stdin.isatty()
+    interactive = not args.no_view and sys.stdout.isatty() and sys.stdin.isatty() and _has_termios()
     existed = Path(args.out).exists()
     run_dir = prepare_run_dir(args.out, args.force)
     engine = CaptureEngine(source, run_dir, settings, corr, baseline_s=args.baseline_s, save_audio=args.save_audio,
                            max_seconds=args.seconds,
-                           meta={"command": "coilshift " + " ".join(sys.argv[1:]) if sys.argv else "capture"})
+                           meta={"command": "capture", "options": {k: v for k, v in vars(args).items()
+                                                                  if k not in ("func", "command")}})
     try:
         if show_caution_once() and interactive:
             # the live panel clears the screen: let the caution be read first
@@ -212,15 +224,16 @@ def run(args) -> int:
     old_term = signal.signal(signal.SIGTERM, _term)
     plot = None
     how = "ended"
+    said = io.StringIO()  # a message about the plot window: shown in the panel, or on stderr
     try:
         if args.plot:
-            plot = LivePlot.open()
+            plot = LivePlot.open(err=said if interactive else sys.stderr)
         if args.no_view:
             while not engine.wait(0.1 if plot is None else 0.05):
                 if plot is not None:
                     plot.update(engine.snapshot())
         elif interactive:
-            how = TerminalPanel(engine, title).run(plot)
+            how = TerminalPanel(engine, title, note=said.getvalue().strip().removeprefix("coilshift: ")).run(plot)
         else:  # not a terminal: a plain line a second (on stderr when stdout carries the JSON)
             stream = sys.stderr if args.json else sys.stdout
             stream.write(title + "\n")

@@ -148,7 +148,8 @@ class CaptureEngine:
     queue_blocks : size of the bounded block queue between the callback and the worker
     append_interval_s : rows are appended (and so flushed) at least this often
     fsync_interval_s : handed to the run writer
-    stall_timeout_s : a source that delivers nothing for this long has failed
+    stall_timeout_s : a source that delivers nothing for this long has failed (at least 10 s
+        are allowed for the first block)
     track_batch_s : audio is handed to the tracker in batches of about this length
     tracker_factory : ``f(sample_rate_hz, settings)`` making a streaming tracker; default
         :class:`coilshift.logger.tracker.FrameTracker`
@@ -410,7 +411,9 @@ class CaptureEngine:
             return False
         if msg is None and not self._stop_request.is_set() and not self.finished.is_set():
             idle = time.monotonic() - self._last_block_time
-            if idle > self.stall_timeout_s:
+            # some devices take seconds to deliver their first block
+            limit = self.stall_timeout_s if self._arrival_first is not None else max(10.0, self.stall_timeout_s)
+            if idle > limit:
                 msg = f"no audio for {idle:.1f} s (device removed or stream stopped)"
         if msg is None or self._ended_by:
             return False

@@ -91,6 +91,8 @@ def panel_lines(snap, title: str, prompt: str | None, note: str) -> list[str]:
     ]
     if snap.last_fault:
         lines.insert(-1, f"  last fault {snap.last_fault}")
+    if snap.message:
+        lines.insert(-1, f"  note       {snap.message}")
     if prompt is not None:
         lines.append(MARKER_HELP)
         lines.append(f"label (Enter to set, Esc to cancel): {prompt}_")
@@ -128,16 +130,18 @@ class TerminalPanel:
     engine : a started :class:`~coilshift.logger.capture.CaptureEngine`
     title : first line of the panel (device, rate, run folder)
     inp, out : terminal streams (stdin / stdout by default)
+    rate_hz : redraws per second
+    note : first message shown under the keys
     """
 
-    def __init__(self, engine, title: str, inp=None, out=None, rate_hz: float = 5.0):
+    def __init__(self, engine, title: str, inp=None, out=None, rate_hz: float = 5.0, note: str = ""):
         self.engine = engine
         self.title = title
         self.inp = inp or sys.stdin
         self.out = out or sys.stdout
         self.period_s = 1.0 / rate_hz
         self.prompt: str | None = None
-        self.note = ""
+        self.note = note
         self._drawn = 0
 
     def run(self, plot: "LivePlot | None" = None) -> str:
