@@ -60,6 +60,9 @@ HUM_PEAK_RATIO = 10.0
 #: at most this many per frame, and only those within this range of the tone's Hann peak power
 OTHER_LINES = 8
 OTHER_LINES_RANGE_DB = 60.0
+#: local detection test: this many cells (half each side), starting this many bins from the peak
+LOCAL_CELLS = 24
+LOCAL_GUARD = 3
 #: bins either side of each harmonic left out of the noise estimate
 NOISE_GUARD_BINS = 3
 #: the noise median uses about this many bins (every few bins: cheaper, and Hann neighbours are
@@ -166,6 +169,25 @@ class TrackerSettings:
                 raise InputError(f"tracker settings: near_hz {self.near_hz:g} Hz lies outside band_hz {self.band_hz[0]:g}..{self.band_hz[1]:g} Hz")
 
 
+def os_cfar_factor(cells: int, rank: int, p_false: float) -> float:
+    """Threshold factor T on the ``rank``-th smallest of ``cells`` exponential noise powers.
+
+    An ordered-statistic CFAR test declares a signal when ``P > T * X(rank)``; for independent
+    exponential cells the false-alarm probability is ``prod_{i=0}^{rank-1} (cells - i) /
+    (cells - i + T)`` (Rohling 1983, IEEE Trans. Aerosp. Electron. Syst. 19(4)). Solved for T.
+    """
+    def pfa(t):
+        return math.prod((cells - i) / (cells - i + t) for i in range(rank))
+
+    lo, hi = 0.0, 1.0
+    while pfa(hi) > p_false:
+        hi *= 2.0
+    for _ in range(100):
+        mid = 0.5 * (lo + hi)
+        lo, hi = (mid, hi) if pfa(mid) > p_false else (lo, mid)
+    return hi
+
+
 def dirichlet(nu, n: int):
     """Rectangular-window kernel ``sum_{i=0}^{n-1} exp(2j pi nu i / n)`` for fractional ``nu`` (bins).
 
@@ -221,6 +243,12 @@ class _Plan:
         self.noise_idx = np.arange(self.kmin, self.kmax + 1, self.noise_step)
         m_search = max(self.s1 - self.s0 + 1, 2)
         self.detect_ratio = math.log(m_search / FALSE_ALARM_PER_FRAME)
+        # local test (ordered-statistic CFAR): the peak against the median of nearby bins, so a
+        # hump of coloured noise (1/f, rumble) is not taken for a tone
+        half = LOCAL_CELLS // 2
+        self.local_offsets = np.concatenate([-np.arange(LOCAL_GUARD, LOCAL_GUARD + half)[::-1],
+                                             np.arange(LOCAL_GUARD, LOCAL_GUARD + half)])
+        self.local_ratio = os_cfar_factor(LOCAL_CELLS, LOCAL_CELLS // 2, FALSE_ALARM_PER_FRAME / m_search)
         # subharmonic hypotheses: positions h/m of the strongest line, h = 1..m, m = 2..M
         ratios, ms, hs = [], [], []
         for m in range(2, MAX_HARMONIC_SEARCH + 1):
@@ -354,7 +382,10 @@ class _Plan:
         nb = np.stack([searchable[rows, b0 - 1], searchable[rows, b0], searchable[rows, b0 + 1]], axis=1)
         k = np.clip(b0 - 1 + np.argmax(nb, axis=1), self.kmin, self.kmax)
         fc = k + self._grandke(power, k)
-        have &= searchable[rows, k] > detect
+        p_k = searchable[rows, k]
+        local = np.clip(k[:, None] + self.local_offsets[None, :], 2, self.nbins - 1)
+        local_sorted = np.sort(power[rows[:, None], local], axis=1)
+        have &= (p_k > detect) & (p_k > self.local_ratio * local_sorted[:, LOCAL_CELLS // 2 - 1])
 
         # complex amplitudes of the fundamental and of the harmonics that stand out of the noise
         # (weaker ones leak less than the noise does), from the Hann spectrum

@@ -9,7 +9,7 @@ import pytest
 from coilshift.logger import flags as fl
 from coilshift.logger.errors import InputError
 from coilshift.logger.sinefit import fit_sine4_frames
-from coilshift.logger.tracker import FrameTracker, TrackerSettings, track_array
+from coilshift.logger.tracker import FrameTracker, TrackerSettings, os_cfar_factor, track_array
 
 FS = 48000.0
 
@@ -189,6 +189,27 @@ def test_silence_and_noise_are_no_tone():
     # detection threshold set for a false-alarm probability of 1e-3 per frame: of ~245 frames,
     # three or more false detections have probability below 0.3 %
     assert np.sum((tab.flags & fl.NO_TONE) == 0) <= 2
+
+
+def test_red_noise_is_no_tone():
+    # random-walk (1/f^2) noise: its low-frequency hump is not a tone; the local ordered-statistic
+    # test compares the peak with its neighbours, not with the spectrum's overall median
+    walk = np.cumsum(np.random.default_rng(7).standard_normal(int(5 * FS)))
+    tab = track_array(0.3 * walk / np.abs(walk).max(), FS)
+    assert np.mean((tab.flags & fl.NO_TONE) == 0) < 0.02
+
+
+def test_os_cfar_factor():
+    # Rohling 1983 [pub]: Pfa = prod_{i<rank} (n - i)/(n - i + T); for rank 1 this is n / (n + T),
+    # so T = n (1/Pfa - 1) [derived]
+    assert os_cfar_factor(24, 1, 0.01) == pytest.approx(24 * 99, rel=1e-9)
+    # Monte Carlo with exponential noise cells (numpy's generator as the independent reference):
+    # 200000 trials give Pfa = 0.01 to +-0.00022 (binomial), so +-0.0012 is over 5 sigma
+    t = os_cfar_factor(24, 12, 0.01)
+    rng = np.random.default_rng(1)
+    cells = np.sort(rng.exponential(size=(200000, 24)), axis=1)[:, 11]
+    cut = rng.exponential(size=200000)
+    assert np.mean(cut > t * cells) == pytest.approx(0.01, abs=0.0012)
 
 
 def test_clipped_tone_flagged_and_still_tracked():
