@@ -56,6 +56,8 @@ MAINS_HZ = (50.0, 60.0)
 HUM_HARMONICS = 10
 #: a hum line must stand this far (power ratio, 10 dB) above the bins two either side of it
 HUM_PEAK_RATIO = 10.0
+#: a line more than this (power ratio, 10 dB) above the mains line is not taken for its harmonic
+HUM_STRONGER = 10.0
 #: other strong lines (hum, another oscillator) whose rectangular-window leakage is cancelled:
 #: at most this many per frame, and only those within this range of the tone's Hann peak power
 OTHER_LINES = 8
@@ -274,7 +276,8 @@ class _Plan:
                     mask[max(lo_b, 0):min(hi_b, nbins - 1) + 1] = True
                 c = int(round(centre))
                 # the line must be a local peak: a strong tone's skirt also lights up these bins
-                self.hum.append((np.arange(c - 1, c + 2), np.array([c - 2, c + 2]), mask))
+                cells = np.clip(c + self.local_offsets, 2, nbins - 1)
+                self.hum.append((np.arange(c - 1, c + 2), np.array([c - 2, c + 2]), mask, cells))
         self.near_bin = None if settings.near_hz is None else settings.near_hz / self.df
         # blocked DTFT: frame (zero-padded) reshaped to rows of DTFT_BLOCK samples
         self.rows = -(-n // DTFT_BLOCK)
@@ -329,13 +332,23 @@ class _Plan:
         detect = noise_raw * self.detect_ratio
 
         searchable = power
-        for probe, flank, mask in self.hum:
+        for probe, flank, mask, cells in self.hum:
             top = power[:, probe].max(axis=1)
             hum_on = (top > detect) & (top > HUM_PEAK_RATIO * power[:, flank].max(axis=1))
             if hum_on.any():
+                # the same local test as for a tone, so a noise spike on a tone's skirt is not hum
+                near = np.sort(power[:, cells], axis=1)[:, LOCAL_CELLS // 2 - 1]
+                hum_on &= top > self.local_ratio * near
+            if hum_on.any():
                 if searchable is power:
                     searchable = power.copy()
-                searchable[np.ix_(hum_on, mask)] = 0.0
+                # lines far stronger than the mains line itself are not its harmonics
+                region = searchable[hum_on][:, mask]
+                weak = region < HUM_STRONGER * top[hum_on, None]
+                region[weak] = 0.0
+                sub = searchable[hum_on]
+                sub[:, mask] = region
+                searchable[hum_on] = sub
         if self.settings.band_hz is not None:
             if searchable is power:
                 searchable = power.copy()
