@@ -164,3 +164,27 @@ def test_clipping_and_hum():
     # hum at 60 Hz, 0.01 amplitude, and its third harmonic at half that
     assert spec[60] == pytest.approx(0.01, rel=1e-3)
     assert spec[180] == pytest.approx(0.005, rel=1e-2)
+
+
+def test_coil_and_physical_targets_drive_the_tone():
+    # The oscillator runs at the coil's LC frequency and a physical target shifts it by the models'
+    # prediction (coilshift.analysis.coil / .target, tested against Wheeler 1928, Grover's tables
+    # and Wait 1951 there); here the zero-crossing count of the rendered tone must show both.
+    from coilshift.analysis.coil import analyse_coil, design_from_dict
+    from coilshift.analysis.target import parse_target_spec, predicted_shift_hz
+
+    coil = {"turns": 32, "inner_diameter_mm": 200, "length_mm": 7, "depth_mm": 7, "awg": 25, "cap_nf": 270}
+    d = script_dict(oscillator={"coil": coil}, recording={"max_harmonic": 1},
+                    targets={"alu": {"material": "aluminium", "diameter_mm": 25}},
+                    session={"move_s": 0.2, "steps": [{"target": "baseline", "hold_s": 1.0},
+                                                       {"target": "alu", "distance_mm": 20, "hold_s": 1.0}]})
+    d["oscillator"].pop("freq_hz")
+    s = parse_script(d, "t")
+    report = analyse_coil(design_from_dict(coil))
+    f0 = report.lc_freq_hz
+    shift = float(predicted_shift_hz(report, parse_target_spec("aluminium:diameter_mm=25"), [20.0], f0)[0])
+    assert shift > 1.0  # a conductor raises the frequency by a measurable amount here
+    x = render_array(s)
+    m = markers_for(plan(s))
+    assert zero_crossing_freq_hz(_hold(x, m[0]), FS) == pytest.approx(f0, abs=1e-3)
+    assert zero_crossing_freq_hz(_hold(x, m[1]), FS) == pytest.approx(f0 + shift, abs=1e-3)
