@@ -661,6 +661,7 @@ class FrameTracker:
         self._next = 0  # absolute index of the next frame's first sample
         self._received = 0
         self._gap_pending = False
+        self._clip_pending = False
 
     def push(self, block, gap_before: bool = False) -> FrameTable:
         """Add samples; return the frames this block completed.
@@ -675,16 +676,22 @@ class FrameTracker:
         x = np.asarray(block, dtype=np.float64)
         if x.ndim != 1:
             raise InputError(f"tracker input: expected a 1-D block of samples, got shape {x.shape}")
-        # a sum is a cheap pass that turns any NaN or infinity into a non-finite result
-        if x.size and not np.isfinite(x.sum()):
+        # max and min are cheap passes; NaN propagates through them and infinities show up in them
+        top = float(x.max()) if x.size else 0.0
+        bottom = float(x.min()) if x.size else 0.0
+        if not (math.isfinite(top) and math.isfinite(bottom)):
             raise InputError("tracker input: block contains NaN or infinite samples")
+        level = self.settings.clip_level
         if gap_before:
+            self._clip_pending = False
             self._buf = np.zeros(0)
             self._buf_start = self._received
             self._next = self._received
             self._gap_pending = True
         if x.size == 0:
             return FrameTable.empty()
+        if top >= level or bottom <= -level:
+            self._clip_pending = True  # some buffered sample is clipped; find it when framing
         # no copy when nothing is buffered: the tail is copied below
         self._buf = np.concatenate([self._buf, x]) if self._buf.size else x
         self._received += x.size
@@ -699,8 +706,13 @@ class FrameTracker:
         used = self._buf[off:off + (count - 1) * hop + n]
         windows = sliding_window_view(used, n)[::hop]
         # frames holding a clipped sample, from one pass over the samples (not one per frame)
-        level = self.settings.clip_level
-        hits = np.flatnonzero((used >= level) | (used <= -level))
+        if self._clip_pending:
+            tail = self._buf[off:]  # everything still buffered, not only what these frames use
+            hits = np.flatnonzero((tail >= level) | (tail <= -level))
+            # the clipped samples may still be buffered for the next frames
+            self._clip_pending = hits.size > 0 and hits[-1] >= count * hop
+        else:
+            hits = np.zeros(0, dtype=np.int64)
         starts_rel = np.arange(count) * hop
         clipped = np.searchsorted(hits, starts_rel) < np.searchsorted(hits, starts_rel + n)
         tables = []

@@ -235,7 +235,9 @@ def test_streaming_equals_batch_for_any_cut(fs, settings):
     t = np.arange(int(0.8 * fs)) / fs
     x = 0.3 * np.cos(2 * np.pi * 1234.5 * t) + 0.02 * np.cos(2 * np.pi * 50 * t) + 0.3 * (np.sin(2 * np.pi * 300.0 * t) > 0.4)
     x += 0.01 * np.random.default_rng(12).standard_normal(t.size)
+    x[int(0.3 * fs):int(0.3 * fs) + 50] = 1.0  # a clipped burst: CLIPPED must not depend on the cuts
     batch = track_array(x, fs, settings)
+    assert 0 < np.sum(batch.flags & fl.CLIPPED) < len(batch)
     rng = np.random.default_rng(0)
     for _ in range(3):
         tracker = FrameTracker(fs, settings)
