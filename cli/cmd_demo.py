@@ -38,7 +38,7 @@ def run(args) -> int:
     import sys
 
     from coilshift.cli.common import print_json
-    from coilshift.sim.demo import run_demo, summary_table
+    from coilshift.sim.demo import CAUTION, run_demo, summary_table
 
     out = args.out if args.out is not None else _free_dir()
     quiet = args.json
@@ -54,5 +54,6 @@ def run(args) -> int:
         print(f"B-200 stability: Allan deviation {1000 * st['oadev_hz_at_1s']:.2f} mHz at 1 s, "
               f"drift {st['drift_hz_per_min']:+.3g} Hz/min")
     print("all recordings are synthetic (made by the simulator); see the report's note")
+    print(CAUTION)
     print(f"report: {summary['report']}")
     return 0

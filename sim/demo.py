@@ -129,7 +129,24 @@ def _track(recording: Path, markers: Path | None, run_dir: Path) -> dict:
 
 
 def _fmt_mm(x) -> str:
-    return "-" if x is None or not math.isfinite(x) else f"{x:.0f}"
+    # the models give 0 mm for "never reaches the threshold"; show it like an undefined range
+    return "-" if x is None or not math.isfinite(x) or x <= 0 else f"{x:.0f}"
+
+
+CAUTION = ("Before wiring a real detector to a line input read docs/guide.md section 1: a line input "
+           "takes about 1-2 V peak, detector outputs can swing to their supply, and nothing tied to the "
+           "mains may be connected without isolation.")
+
+
+def range_gains(rows: list[dict], new: str = "B-200", old: str = "A-150") -> dict[str, float]:
+    """Range of the new coil over the old one, per target both coils detect."""
+    by = {(r["coil"], r["target"]): r["range_mm"] for r in rows}
+    out = {}
+    for (coil, target), rng in by.items():
+        other = by.get((old, target))
+        if coil == new and rng and other:
+            out[target] = rng / other
+    return out
 
 
 def run_demo(out_dir: str | os.PathLike, force: bool = False,
@@ -205,6 +222,7 @@ def run_demo(out_dir: str | os.PathLike, force: bool = False,
                       "warmup_s": stab.warmup.warmup_s if stab.warmup.settled else None},
         "rows": [vars(r) for r in rows],
         "all_classes_right": all(r.expected == r.measured for r in rows),
+        "range_gain_b200_over_a150": range_gains([vars(r) for r in rows]),
         "polarity_warnings": [w for r in results.values() for w in r.warnings if "polarity" in w.lower()],
         "elapsed_s": elapsed,
     }
@@ -227,6 +245,10 @@ def summary_table(summary: dict) -> str:
         rng = _fmt_mm(r["range_mm"]) + (f" ({ci[0]:.0f}-{ci[1]:.0f})" if ci else "")
         lines.append(f"{r['coil']:<7} {r['target']:<15} {r['expected']:<14} {r['measured']:<14} {rng:<20} "
                      f"{_fmt_mm(r['design_mm']):>9} {_fmt_mm(r['true_mm']):>8}")
+    gains = summary.get("range_gain_b200_over_a150") or {}
+    if gains:
+        lines.append("")
+        lines.append("B-200 range / A-150 range: " + ", ".join(f"{k} {v:.2f}" for k, v in gains.items()))
     return "\n".join(lines)
 
 
@@ -265,6 +287,8 @@ coil files and handbook materials; "true" is the simulated bench's exact range a
 "truth" is the call the simulated response deserves.</p>
 <table><tr><th>coil</th><th>target</th><th>truth</th><th>measured</th><th>range mm (95% CI)</th>
 <th>design mm</th><th>true mm</th></tr>{''.join(trs)}</table>
+<p>"-": the range is undefined (no reading reaches the threshold, or the target gives no response).
+B-200 range over A-150 range: {e(", ".join(f"{k} {v:.2f}" for k, v in summary["range_gain_b200_over_a150"].items()))}.</p>
 <p>Full calibration report with curves, residuals, time series and the comparison table:
 <a href="calibration/report.html">calibration/report.html</a>.</p>
 <img src="calibration/compare.png" alt="shift against distance for both coils">
@@ -274,6 +298,7 @@ warm-up: {warm}.</p>
 <img src="stability/sigma_tau.png" alt="Allan deviation against averaging time">
 <img src="stability/drift.png" alt="frequency against time with drift line">
 <h2>Warnings from the analysis</h2><ul>{wl}</ul>
+<h2>Before you connect real hardware</h2><p class="note">{e(CAUTION)}</p>
 <h2>Files</h2>
 <ul><li><code>recordings/</code>: simulated WAV files, markers, truth and scripts</li>
 <li><code>runs/</code>: the tracked run folders (log.csv, run.json, markers.csv)</li>
