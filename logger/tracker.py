@@ -283,32 +283,43 @@ class _Plan:
         self.rows = -(-n // DTFT_BLOCK)
         self.npad = self.rows * DTFT_BLOCK
         self.rows_hi = -(-self.rows // 8)  # row phasors as a (rows_hi x 8) outer product
+        # phasors of the frequency one bin lower = phasors times exp(+2j pi i / n)
+        self.col_shift = np.exp(2j * np.pi * np.arange(DTFT_BLOCK) / n)
+        self.row_shift = np.exp(2j * np.pi * DTFT_BLOCK * np.arange(self.rows) / n)
         self.step8 = np.arange(max(8, self.rows_hi), dtype=float)
         self.harm = np.arange(1, LEAKAGE_HARMONICS + 1, dtype=float)
         self.am_phase = np.exp(1j * np.pi * (n - 1) / n)
         self.am_tan = math.tan(math.pi / (2 * n))
 
     # ------------------------------------------------------------------ stages
-    def blocked_dtft(self, xpad, g):
-        """DTFT of each row of ``xpad`` (F, npad) at bins ``g`` (F, K) -> ((F, K) complex, row sums)."""
+    def dtft_pair(self, xpad, g_plus):
+        """DTFT of each row of ``xpad`` (F, npad) at bins ``g_plus`` and ``g_plus - 1``.
+
+        Returns ((F, 2) complex, (F,) row sums). The frame is reshaped to rows of DTFT_BLOCK
+        samples; one small matrix product per frame applies the in-row phasors of both
+        frequencies (and a column of ones, which gives the frame sum for free), then the row
+        phasors finish the sums. Phasors come from 8 x 8 outer products of exponentials, and
+        the second frequency's from the first times a fixed vector.
+        """
         nrow = xpad.shape[0]
-        k = g.shape[1]
-        theta = -2 * np.pi * g / self.n  # (F, K)
-        # phasors exp(j theta b) for b = 0..63 as an 8 x 8 outer product: 16 exponentials, not 64
-        fine = np.exp(1j * theta[:, :, None] * self.step8[:8])  # (F, K, 8)
-        coarse = np.exp(1j * theta[:, :, None] * (8 * self.step8[:8]))
-        col = (coarse[:, :, :, None] * fine[:, :, None, :]).reshape(nrow, k, DTFT_BLOCK)
-        # real weights for the real and imaginary parts of every requested frequency: (F, B, 2K)
-        # plus a column of ones: the row sums give the frame mean at no extra pass over the data
-        ones = np.ones((nrow, 1, DTFT_BLOCK))
-        w = np.concatenate([col.real, col.imag, ones], axis=1).transpose(0, 2, 1)
-        inner = np.matmul(xpad.reshape(nrow, self.rows, DTFT_BLOCK), w)  # (F, rows, 2K+1)
-        total = inner[:, :, 2 * k].sum(axis=1)
-        inner_c = inner[:, :, :k] + 1j * inner[:, :, k:2 * k]  # (F, rows, K)
-        rfine = np.exp(1j * theta[:, :, None] * (DTFT_BLOCK * self.step8[:8]))  # (F, K, 8)
-        rcoarse = np.exp(1j * theta[:, :, None] * (8 * DTFT_BLOCK * self.step8[:self.rows_hi]))
-        rowph = (rcoarse[:, :, :, None] * rfine[:, :, None, :]).reshape(nrow, k, -1)[:, :, :self.rows]
-        return np.einsum("frk,fkr->fk", inner_c, rowph), total
+        theta = -2 * np.pi * g_plus / self.n  # (F,)
+        fine = np.exp(1j * theta[:, None] * self.step8[:8])  # (F, 8)
+        coarse = np.exp(1j * theta[:, None] * (8 * self.step8[:8]))
+        col_p = (coarse[:, :, None] * fine[:, None, :]).reshape(nrow, DTFT_BLOCK)
+        col_m = col_p * self.col_shift  # one bin lower
+        w = np.empty((nrow, 5, DTFT_BLOCK))
+        w[:, 0], w[:, 1] = col_p.real, col_p.imag
+        w[:, 2], w[:, 3] = col_m.real, col_m.imag
+        w[:, 4] = 1.0
+        inner = np.matmul(xpad.reshape(nrow, self.rows, DTFT_BLOCK), w.transpose(0, 2, 1))  # (F, rows, 5)
+        rfine = np.exp(1j * theta[:, None] * (DTFT_BLOCK * self.step8[:8]))
+        rcoarse = np.exp(1j * theta[:, None] * (8 * DTFT_BLOCK * self.step8[:self.rows_hi]))
+        row_p = (rcoarse[:, :, None] * rfine[:, None, :]).reshape(nrow, -1)[:, :self.rows]
+        row_m = row_p * self.row_shift
+        out = np.empty((nrow, 2), dtype=complex)
+        out[:, 0] = np.einsum("fr,fr->f", inner[:, :, 0] + 1j * inner[:, :, 1], row_p)
+        out[:, 1] = np.einsum("fr,fr->f", inner[:, :, 2] + 1j * inner[:, :, 3], row_m)
+        return out, inner[:, :, 4].sum(axis=1)
 
     def analyse(self, frames, clipped):
         """Analyse a (F, N) frame matrix; return freq_hz, amp_dbfs, snr_db, flags (arrays of F)."""
@@ -422,7 +433,7 @@ class _Plan:
             xpad = np.zeros((nf, self.npad))
             xpad[:, :n] = frames
         # DTFT of the frame minus its mean: subtract the mean's kernel analytically
-        s_pm, total = self.blocked_dtft(xpad, g)
+        s_pm, total = self.dtft_pair(xpad, g[:, 0])
         mean = total / n
         wg_conj = np.conj(dirichlet(g, n))
         s_pm -= mean[:, None] * wg_conj
