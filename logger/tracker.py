@@ -62,6 +62,9 @@ HUM_STRONGER = 10.0
 #: at most this many per frame, and only those within this range of the tone's Hann peak power
 OTHER_LINES = 8
 OTHER_LINES_RANGE_DB = 60.0
+#: closed-form interpolation passes; a second pass (with the amplitude from the first) changed the
+#: RMS error by less than the 2 % scatter of a 2000-frame test at 10 and 60 dB, so one is kept
+FINE_PASSES = 1
 #: local detection test: this many cells (half each side), starting this many bins from the peak
 LOCAL_CELLS = 24
 LOCAL_GUARD = 3
@@ -260,7 +263,9 @@ class _Plan:
                 hs.append(h)
         self.sub_ratio = np.array(ratios)
         self.sub_m = np.array(ms)
-        self.sub_h = np.array(hs)
+        self.sub_start = np.flatnonzero(np.array(hs) == 1)  # first column of each divisor's group
+        self.sub_need = np.array([math.ceil(m / 2) for m in range(2, MAX_HARMONIC_SEARCH + 1)])
+        self.divisors = np.arange(1, MAX_HARMONIC_SEARCH + 1, dtype=float)
         # hum: bins around k * mains, excluded when the mains line itself shows (no band given)
         self.hum = []
         if settings.band_hz is None:
@@ -382,17 +387,12 @@ class _Plan:
         best = np.maximum(np.maximum(searchable[rows[:, None], pos - 1], searchable[rows[:, None], pos]),
                           searchable[rows[:, None], pos + 1])
         present = best > thr_sub[:, None]
-        f0_all = [fp]
-        m_valid = [np.ones(nf, dtype=bool)]
-        for m in range(2, MAX_HARMONIC_SEARCH + 1):
-            sel = self.sub_m == m
-            pres = present[:, sel]
-            f0 = fp / m
-            ok = pres[:, 0] & (pres.sum(axis=1) >= math.ceil(m / 2)) & (f0 >= self.lo_bin - 0.5) & (f0 >= self.kmin)
-            f0_all.append(f0)
-            m_valid.append(ok)
-        f0_all = np.stack(f0_all, axis=1)  # (F, M)
-        m_valid = np.stack(m_valid, axis=1)
+        # per divisor m (columns grouped by m): the h = 1 peak, and how many of h = 1..m show
+        counts = np.add.reduceat(present, self.sub_start, axis=1, dtype=np.int64)
+        f0_all = fp[:, None] / self.divisors[None, :]  # (F, M), divisor 1 first
+        m_valid = np.ones(f0_all.shape, dtype=bool)
+        m_valid[:, 1:] = (present[:, self.sub_start] & (counts >= self.sub_need[None, :])
+                          & (f0_all[:, 1:] >= max(self.lo_bin - 0.5, self.kmin)))
         if self.near_bin is None:
             # lowest consistent fundamental = largest valid divisor
             choice = (m_valid.shape[1] - 1) - np.argmax(m_valid[:, ::-1], axis=1)
@@ -440,7 +440,7 @@ class _Plan:
         s_pm -= self._other_lines_leakage(power, spec, detect, k, fc, hvalid, g, wg_conj)
         f_fine = fc.copy()
         a1 = amp_h[:, 0]
-        for _ in range(2):
+        for _ in range(FINE_PASSES):
             f_fine, a1 = self._am_step(s_pm, g, wg_conj, f_fine, a1, amp_h, hvalid)
         freq_bins = f_fine
         amp = 2 * np.abs(a1)
