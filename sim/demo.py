@@ -168,7 +168,7 @@ def run_demo(out_dir: str | os.PathLike, force: bool = False,
     out = new_output_dir(out_dir, force)
     sessions = {"A-150": calibration_script("A-150", 11), "B-200": calibration_script("B-200", 12),
                 "B-200-stability": stability_script(13)}
-    results, plans, reports, coil_files = {}, {}, {}, {}
+    results, plans, reports = {}, {}, {}
     scripts = {name: parse_script(obj, f"demo {name}") for name, obj in sessions.items()}
     for name, obj in sessions.items():
         rec = out / "recordings" / name
@@ -183,8 +183,7 @@ def run_demo(out_dir: str | os.PathLike, force: bool = False,
     coils_dir = out / "coils"
     coils_dir.mkdir(exist_ok=True)
     for key, design in COILS.items():
-        coil_files[key] = coils_dir / f"{key}.json"
-        write_text_atomic(coil_files[key], json.dumps(design, indent=2) + "\n")
+        write_text_atomic(coils_dir / f"{key}.json", json.dumps(design, indent=2) + "\n")
         reports[key] = analyse_coil(design_from_dict(design, key))
     models = {n: parse_target_spec(f"{p['material']}:diameter_mm={p['diameter_mm']}") for n, p in PIECES_DESIGN.items()}
     for key in COILS:

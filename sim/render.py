@@ -21,7 +21,6 @@ from typing import Iterator
 import numpy as np
 
 from coilshift.logger.atomic import write_json_atomic, write_text_atomic
-from coilshift.logger.errors import InputError
 from coilshift.logger.markers import BASELINE, Marker, markers_to_csv
 
 from .oscillator import PhaseNoise, PulseSynth, Schedule, apparent_freq_hz, drift_hz
@@ -227,8 +226,6 @@ def simulate(script: Script, out_dir: str | os.PathLike) -> dict:
     Returns a small summary dict (paths, duration, frequencies).
     """
     rec = script.recording
-    if abs(rec.sample_rate_hz - round(rec.sample_rate_hz)) > 1e-9:
-        raise InputError(f"{script.name}: recording.sample_rate_hz must be a whole number of Hz for a sound file")
     out_dir = Path(out_dir)
     p = plan(script)
     audio = out_dir / f"recording.{rec.encoding}"

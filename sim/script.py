@@ -186,8 +186,10 @@ def _recording(c: _Checker, d: dict) -> Recording:
         c.fail(f"{w}.anti_alias", "expected true or false")
     hum = c.obj(d, "hum", w)
     c.unknown(hum, {"mains_hz", "level_dbfs"}, f"{w}.hum")
+    # sound files store a whole number of hertz; FLAC stops at 655350 Hz
+    rate = c.num(d, "sample_rate_hz", w, 48000, lo=1000, hi=655350 if enc == "flac" else 768000, integer=True)
     return Recording(
-        sample_rate_hz=c.num(d, "sample_rate_hz", w, 48000.0, lo=1000.0, hi=768000.0),
+        sample_rate_hz=float(rate),
         encoding=enc, bits=bits,
         level_dbfs=c.num(d, "level_dbfs", w, -12.0, lo=-200.0, hi=20.0),
         noise_dbfs=c.num(d, "noise_dbfs", w, -80.0, lo=-200.0, hi=0.0),
