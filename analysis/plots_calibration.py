@@ -17,6 +17,7 @@ import matplotlib
 matplotlib.use("Agg")  # files only, never a window
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
+from matplotlib.ticker import FuncFormatter  # noqa: E402
 
 from coilshift.logger.atomic import write_bytes_atomic  # noqa: E402
 
@@ -35,6 +36,14 @@ def _finish(fig, path) -> bytes:
     if path is not None:
         write_bytes_atomic(path, data)
     return data
+
+
+def _plain_mm_ticks(ax) -> None:
+    # distances read better as 20, 30, 50 mm than as 2x10^1 on a log axis
+    fmt = FuncFormatter(lambda v, _: f"{v:g}")
+    ax.xaxis.set_major_formatter(fmt)
+    ax.xaxis.set_minor_formatter(FuncFormatter(lambda v, _: f"{v:g}" if f"{v:g}"[0] in "235" else ""))
+    ax.tick_params(axis="x", which="minor", labelsize=7)
 
 
 def _color(i: int) -> str:
@@ -106,6 +115,7 @@ def plot_curves(res: CalibrationResult, path: str | os.PathLike | None = None) -
     _sign_legend(ax)
     ax.set_xscale("log")
     ax.set_yscale("log")
+    _plain_mm_ticks(ax)
     _floor_axis(ax, res)
     ax.set_xlabel("distance from coil (mm)")
     ax.set_ylabel("|frequency shift| (Hz)")
@@ -185,6 +195,7 @@ def plot_residuals(res: CalibrationResult, path: str | os.PathLike | None = None
         ax.axhline(-level, color="grey", ls=ls, lw=0.8)
     ax.axhline(0, color="black", lw=0.8)
     ax.set_xscale("log")
+    _plain_mm_ticks(ax)
     ax.set_xlabel("distance from coil (mm)")
     ax.set_ylabel("(measured - fit) / stderr")
     ax.set_title("Dipole-fit residuals (dotted: +-1, dashed: +-3 standard errors)")
@@ -229,6 +240,7 @@ def plot_compare(results: list[CalibrationResult], names: list[str],
             mags += [abs(p.shift_hz) for p in t.points if p.shift_hz != 0]
         ax.set_xscale("log")
         ax.set_yscale("log")
+        _plain_mm_ticks(ax)
         if mags:
             ax.set_ylim(min(mags) / 5, max(mags) * 3)
         ax.set_title(tname)
