@@ -179,6 +179,8 @@ def run(args) -> int:
         raise InputError(f"--rate {args.rate:g}: must be > 0")
     if not args.baseline_s > 0:
         raise InputError(f"--baseline-s {args.baseline_s:g}: must be > 0")
+    if args.channel < 0:
+        raise InputError(f"--channel {args.channel}: channels are numbered from 0")
     if args.synthetic:
         source = _synthetic_source(args.synthetic, args.rate, args.seconds)
     else:
