@@ -341,7 +341,7 @@ class _Plan:
         power = sq[:, 0::2] + sq[:, 1::2]  # |X|^2, (F, nbins) float32
 
         # noise floor per Hann bin: median of a decimated spectrum / ln 2 (exponential power)
-        noise_bins = power[:, self.noise_idx]
+        noise_bins = power[:, self.kmin:self.noise_idx[-1] + 1:self.noise_step]  # = the noise_idx bins
         noise_sorted = np.sort(noise_bins, axis=1)
         nd = noise_sorted.shape[1]
         noise_raw = noise_sorted[:, nd // 2].astype(float) / math.log(2.0)
