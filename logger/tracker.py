@@ -369,6 +369,11 @@ class _Plan:
             if searchable is power:
                 searchable = power.copy()
             searchable[:, ~self.search_mask] = 0.0
+            # only local maxima count inside a band: the skirt of a strong tone just outside the
+            # band must not hide a weaker tone inside it
+            inner = searchable[:, 1:-1]
+            skirt = (inner < power[:, :-2]) | (inner < power[:, 2:])
+            inner[skirt] = 0.0
         rows = np.arange(nf)
 
         if self.near_bin is None:

@@ -166,6 +166,16 @@ def test_band_selects_tone_and_flags_out_of_band():
     assert not np.any(plain.flags & fl.OUT_OF_BAND)
 
 
+def test_band_next_to_strong_tone_finds_weak_tone_inside():
+    # the skirt of a strong tone 5 bins below the band edge is higher than a weak tone in the band
+    t = np.arange(int(1.0 * FS)) / FS
+    x = 0.5 * np.cos(2 * np.pi * 1000.0 * t) + 0.0001 * np.cos(2 * np.pi * 1500.0 * t)
+    x += 1e-6 * np.random.default_rng(4).standard_normal(t.size)
+    tab = track_array(x, FS, TrackerSettings(band_hz=(1060.0, 2000.0)))
+    assert np.all(np.abs(tab.freq_hz - 1500.0) < 0.01)
+    assert np.all(tab.flags & fl.OUT_OF_BAND)
+
+
 def test_band_with_nothing_inside_is_no_tone_out_of_band():
     tab = track_array(two_tones(), FS, TrackerSettings(band_hz=(5000.0, 8000.0)))
     assert np.all(np.isnan(tab.freq_hz))
