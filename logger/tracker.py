@@ -174,6 +174,11 @@ class TrackerSettings:
                 raise InputError(f"tracker settings: near_hz {self.near_hz:g} Hz lies outside band_hz {self.band_hz[0]:g}..{self.band_hz[1]:g} Hz")
 
 
+def _clamp(a, lo, hi):
+    """``np.clip`` without its Python-level overhead (called many times per chunk)."""
+    return np.minimum(np.maximum(a, lo), hi)
+
+
 def os_cfar_factor(cells: int, rank: int, p_false: float) -> float:
     """Threshold factor T on the ``rank``-th smallest of ``cells`` exponential noise powers.
 
@@ -203,7 +208,7 @@ def dirichlet(nu, n: int):
     num = np.sin(z)
     den = np.sin(z / n)
     small = np.abs(den) < 1e-12
-    if small.any():
+    if np.logical_or.reduce(small, axis=None):  # ndarray.any() goes through Python-level wrappers
         # at nu = multiple of n the sum is n (times the sign of the alternating phase)
         ratio = np.where(small, n * np.cos(z) / np.cos(z / n), num / np.where(small, 1.0, den))
     else:
@@ -281,7 +286,7 @@ class _Plan:
                     mask[max(lo_b, 0):min(hi_b, nbins - 1) + 1] = True
                 c = int(round(centre))
                 # the line must be a local peak: a strong tone's skirt also lights up these bins
-                cells = np.clip(c + self.local_offsets, 2, nbins - 1)
+                cells = _clamp(c + self.local_offsets, 2, nbins - 1)
                 self.hum.append((np.arange(c - 1, c + 2), np.array([c - 2, c + 2]), mask, cells))
         self.near_bin = None if settings.near_hz is None else settings.near_hz / self.df
         # blocked DTFT: frame (zero-padded) reshaped to rows of DTFT_BLOCK samples
@@ -292,6 +297,8 @@ class _Plan:
         self.col_shift = np.exp(2j * np.pi * np.arange(DTFT_BLOCK) / n)
         self.row_shift = np.exp(2j * np.pi * DTFT_BLOCK * np.arange(self.rows) / n)
         self.step8 = np.arange(max(8, self.rows_hi), dtype=float)
+        self.step3 = np.array([-1, 0, 1])
+        self.half_pm = np.array([0.5, -0.5])
         self.harm = np.arange(1, LEAKAGE_HARMONICS + 1, dtype=float)
         self.am_phase = np.exp(1j * np.pi * (n - 1) / n)
         self.am_tan = math.tan(math.pi / (2 * n))
@@ -388,7 +395,7 @@ class _Plan:
         # subharmonic hypotheses (vectorised): is there a real peak at h * fp / m?
         thr_sub = np.maximum(detect, p_peak * 10 ** (-SUBHARMONIC_RANGE_DB / 10))
         pos = np.rint(fp[:, None] * self.sub_ratio[None, :]).astype(int)  # (F, L)
-        pos = np.clip(pos, 1, self.nbins - 2)
+        pos = _clamp(pos, 1, self.nbins - 2)
         best = np.maximum(np.maximum(searchable[rows[:, None], pos - 1], searchable[rows[:, None], pos]),
                           searchable[rows[:, None], pos + 1])
         present = best > thr_sub[:, None]
@@ -407,12 +414,12 @@ class _Plan:
         f_guess = f0_all[rows, choice]
 
         # settle on the local maximum nearest the guess, then Grandke's Hann interpolation
-        b0 = np.clip(np.rint(f_guess).astype(int), self.kmin + 1, self.kmax - 1)
-        nb = np.stack([searchable[rows, b0 - 1], searchable[rows, b0], searchable[rows, b0 + 1]], axis=1)
-        k = np.clip(b0 - 1 + np.argmax(nb, axis=1), self.kmin, self.kmax)
+        b0 = _clamp(np.rint(f_guess).astype(int), self.kmin + 1, self.kmax - 1)
+        nb = searchable[rows[:, None], b0[:, None] + self.step3[None, :]]
+        k = _clamp(b0 - 1 + np.argmax(nb, axis=1), self.kmin, self.kmax)
         fc = k + self._grandke(power, k)
         p_k = searchable[rows, k]
-        local = np.clip(k[:, None] + self.local_offsets[None, :], 2, self.nbins - 1)
+        local = _clamp(k[:, None] + self.local_offsets[None, :], 2, self.nbins - 1)
         local_sorted = np.sort(power[rows[:, None], local], axis=1)
         have &= (p_k > detect) & (p_k > self.local_ratio * local_sorted[:, LOCAL_CELLS // 2 - 1])
 
@@ -421,7 +428,7 @@ class _Plan:
         hf = fc[:, None] * self.harm[None, :]  # (F, H)
         hbin = np.rint(hf).astype(int)
         hvalid = (hbin <= self.nbins - 2) & (hbin >= 1)
-        hbin = np.clip(hbin, 0, self.nbins - 1)
+        hbin = _clamp(hbin, 0, self.nbins - 1)
         hvalid[:, 1:] &= power[rows[:, None], hbin[:, 1:]] > detect[:, None]
         # columns beyond the last significant harmonic are all zero; dropping them for the whole
         # chunk changes no frame's result because the leakage sums run column by column
@@ -431,7 +438,7 @@ class _Plan:
         amp_h = np.where(hvalid, xh / hann_kernel(hf - hbin, n), 0.0)
 
         # fine stage: exact-kernel Aboutanios-Mulgrew step with leakage cancellation
-        g = np.stack([fc + 0.5, fc - 0.5], axis=1)  # (F, 2)
+        g = fc[:, None] + self.half_pm[None, :]  # (F, 2): fc + 1/2, fc - 1/2
         if self.npad == n:
             xpad = frames
         else:
@@ -470,7 +477,7 @@ class _Plan:
         for step in range(2 * NOISE_GUARD_BINS // step_b + 1):
             j = j_first + step
             inside = (j >= 0) & (j < nd) & (self.kmin + step_b * j <= centre + NOISE_GUARD_BINS)
-            left_out.append((inside & hvalid & have[:, None], np.clip(j, 0, nd - 1)))
+            left_out.append((inside & hvalid & have[:, None], _clamp(j, 0, nd - 1)))
         median_raw = noise_sorted[:, nd // 2:nd // 2 + 1]
         n_above = np.zeros(nf, dtype=int)
         n_below = np.zeros(nf, dtype=int)
@@ -478,7 +485,7 @@ class _Plan:
             high = np.take_along_axis(noise_bins, j, axis=1) > median_raw
             n_above += np.sum(inside & high, axis=1)
             n_below += np.sum(inside & ~high, axis=1)
-        rank = np.clip((nd - n_above + n_below) // 2, 0, nd - 1)
+        rank = _clamp((nd - n_above + n_below) // 2, 0, nd - 1)
         noise_bin = np.take_along_axis(noise_sorted, rank[:, None], axis=1)[:, 0].astype(float) / math.log(2.0)
         noise_var = noise_bin / self.win_power  # white-equivalent noise variance per sample
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -533,7 +540,7 @@ class _Plan:
         h = np.rint(c / fc[r]).astype(int)
         n_h = hvalid.shape[1]
         cancelled = (h >= 1) & (h <= n_h) & (np.abs(c - h * fc[r]) <= 2.0)
-        cancelled &= hvalid[r, np.clip(h - 1, 0, n_h - 1)] | (h == 1)
+        cancelled &= hvalid[r, _clamp(h - 1, 0, n_h - 1)] | (h == 1)
         r, c = r[~cancelled], c[~cancelled]
         out = np.zeros((nf, 2), dtype=complex)
         if r.size == 0:
@@ -549,7 +556,8 @@ class _Plan:
         line_on = np.zeros((nf, n_l), dtype=bool)
         line_bin[r, rank] = c
         line_on[r, rank] = True
-        mags = np.sqrt(np.stack([power[rows[:, None], line_bin + d] for d in (0, -1, 1)]).astype(float))
+        mags = np.sqrt(power[rows[:, None, None], line_bin[:, :, None] + self.step3[None, None, :]].astype(float))
+        mags = (mags[:, :, 1], mags[:, :, 0], mags[:, :, 2])  # peak, left, right
         f_line = line_bin + grandke_hann(mags[0], mags[1], mags[2])
         amp = np.where(line_on, spec[rows[:, None], line_bin].astype(complex) / hann_kernel(f_line - line_bin, n), 0.0)
         g0, g1 = g[:, :1], g[:, 1:]
@@ -570,10 +578,9 @@ class _Plan:
     def _grandke(self, power, k):
         """Grandke's offset at bin k from the Hann power spectrum (magnitudes of three bins)."""
         rows = np.arange(power.shape[0])
-        km = np.clip(k - 1, 0, self.nbins - 1)
-        kq = np.clip(k + 1, 0, self.nbins - 1)
-        mags = np.sqrt(np.stack([power[rows, k], power[rows, km], power[rows, kq]]).astype(float))
-        return grandke_hann(mags[0], mags[1], mags[2])
+        idx = _clamp(k[:, None] + self.step3[None, :], 0, self.nbins - 1)
+        mags = np.sqrt(power[rows[:, None], idx].astype(float))
+        return grandke_hann(mags[:, 1], mags[:, 0], mags[:, 2])
 
     def _nearest_peak(self, searchable, detect):
         """Bin of the significant local maximum nearest ``near_hz`` in each frame."""
@@ -628,7 +635,7 @@ class _Plan:
             rho = -(p_plus / p_minus) * self.am_phase
             q = np.real((rho + 1) / (rho - 1))
             r = np.arctan(self.am_tan * q) * (n / np.pi)
-        r = np.where(np.isfinite(r), np.clip(r, -0.5, 0.5), 0.0)
+        r = np.where(np.isfinite(r), _clamp(r, -0.5, 0.5), 0.0)
         f_new = (g[:, 0] - 0.5) + r
         # least-squares amplitude from both samples (their kernels have nearly opposite phase)
         w = dirichlet(f_new[:, None] - g, n)
