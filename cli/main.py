@@ -48,6 +48,13 @@ def main(argv: list[str] | None = None) -> int:
     except InputError as exc:
         print(f"{PROG}: error: {exc}", file=sys.stderr)
         return 2
+    except BrokenPipeError:
+        # the reader went away (e.g. `coilshift ... | head`): nothing to say, stop quietly
+        try:
+            sys.stdout = open(os.devnull, "w")
+        except OSError:
+            pass
+        return 0
     except KeyboardInterrupt:
         print(f"{PROG}: interrupted", file=sys.stderr)
         return 130
