@@ -35,8 +35,13 @@ def run(args) -> int:
     from coilshift.logger.sources import open_source
     from coilshift.logger.tracker import TrackerSettings
 
-    if not args.reference_hz > 0:
+    import math
+
+    if not (math.isfinite(args.reference_hz) and args.reference_hz > 0):
         raise InputError(f"--reference-hz {args.reference_hz:g}: must be a positive frequency")
+    for opt, value in (("--frame-ms", args.frame_ms), ("--hop-ms", args.hop_ms)):
+        if not (math.isfinite(value) and value > 0):
+            raise InputError(f"{opt} {value:g}: must be a positive number")
     if args.channel < 0:
         raise InputError(f"--channel {args.channel}: channels are numbered from 0")
     source = open_source(args.input, channel=args.channel)

@@ -55,11 +55,11 @@ class Corrections:
 
     def __post_init__(self) -> None:
         if not np.isfinite(self.clock_ppm) or abs(self.clock_ppm) >= 1e5:
-            raise InputError(f"clock correction: {self.clock_ppm} ppm is not a plausible clock error")
+            raise InputError(f"clock correction (--clock-ppm): {self.clock_ppm} ppm is not a plausible clock error")
         if int(self.divide) != self.divide or self.divide < 1:
-            raise InputError(f"prescaler: divide ratio must be a whole number >= 1, got {self.divide}")
+            raise InputError(f"prescaler (--divide): ratio must be a whole number >= 1, got {self.divide}")
         if int(self.nyquist_zone) != self.nyquist_zone or self.nyquist_zone < 1:
-            raise InputError(f"Nyquist zone must be a whole number >= 1, got {self.nyquist_zone}")
+            raise InputError(f"Nyquist zone (--nyquist-zone) must be a whole number >= 1, got {self.nyquist_zone}")
         object.__setattr__(self, "divide", int(self.divide))
         object.__setattr__(self, "nyquist_zone", int(self.nyquist_zone))
 

@@ -128,7 +128,7 @@ def track_source(source, settings, corrections: Corrections | None, run_dir: str
     name = source_name(source)
     _refuse_existing(run_dir, force)
     if not baseline_s > 0:
-        raise InputError(f"baseline window must be positive, got {baseline_s:g} s")
+        raise InputError(f"baseline window (--baseline-s) must be positive, got {baseline_s:g} s")
     marker_list, markers_name = _load_markers(markers)
     fs = float(source.sample_rate_hz)
     duration_s = float(corrections.time_to_true(source.duration_s))

@@ -197,6 +197,8 @@ def _check_riff(head: bytes, total_size: int, name: str) -> _RiffInfo:
         body = pos + 8
         if cid == b"fmt ":
             have_fmt = True
+            if body + 16 <= len(head):
+                _check_wave_format(head[body:body + 16], name)
         elif cid == b"bext" and body + 338 <= len(head):
             bext = _parse_bext_time(head[body:body + 338])
         elif cid == b"data":
@@ -211,6 +213,28 @@ def _check_riff(head: bytes, total_size: int, name: str) -> _RiffInfo:
     if pos + 8 > total_size:
         raise InputError(f"{name}: truncated WAV header (no data chunk)")
     return _RiffInfo(None, None, bext)  # data chunk beyond the first bytes read: leave to libsndfile
+
+
+def _check_wave_format(fmt: bytes, name: str) -> None:
+    """Refuse a WAVE ``fmt`` chunk whose fields contradict each other (a lying header).
+
+    For PCM (tag 1), IEEE float (3) and WAVE_FORMAT_EXTENSIBLE (0xFFFE) the Microsoft WAVE
+    layout fixes ``block_align = channels * ceil(bits / 8)`` and
+    ``byte_rate = sample_rate * block_align``; a header that breaks them would be read with the
+    wrong channel count or sample size, silently.
+    """
+    tag, channels, rate, byte_rate, block_align, bits = struct.unpack("<HHIIHH", fmt)
+    if channels == 0:
+        raise InputError(f"{name}: damaged WAV header (zero channels)")
+    if tag not in (1, 3, 0xFFFE):
+        return  # compressed encodings have their own rules; libsndfile judges them
+    want = channels * ((bits + 7) // 8)
+    if bits == 0 or block_align != want:
+        raise InputError(f"{name}: inconsistent WAV header: {channels} channel(s) of {bits} bits need "
+                         f"{want}-byte frames, the header says {block_align}")
+    if rate and byte_rate != rate * block_align:
+        raise InputError(f"{name}: inconsistent WAV header: byte rate {byte_rate} is not "
+                         f"{rate} Hz x {block_align} bytes")
 
 
 def _parse_bext_time(body: bytes) -> _dt.datetime | None:
@@ -450,6 +474,17 @@ def _unit_scale(name: str, table: dict[str, float]) -> float | None:
     return None
 
 
+def _column_unit(header: str, table: dict[str, float], what: str, known: str, name: str) -> float:
+    """Scale factor of a column's bracketed unit; no unit means s or V; an unknown unit is refused."""
+    m = _UNIT_IN_NAME.search(header)
+    if not m:
+        return 1.0
+    scale = table.get(m.group(1).lower())
+    if scale is None:
+        raise InputError(f"{name}: unknown {what} unit {m.group(1)!r} in column {header!r} (known: {known})")
+    return scale
+
+
 def detect_csv_layout(lines: list[str], name: str) -> CsvLayout:
     """Find the data start, separator, and the time and voltage columns from a file's first lines.
 
@@ -535,8 +570,9 @@ def detect_csv_layout(lines: list[str], name: str) -> CsvLayout:
         volt_cols = [j for j in data_cols if j != time_col]
     if not volt_cols:
         raise InputError(f"{name}: no voltage column (only a time column was found)")
-    time_scale = _unit_scale(names[time_col], _TIME_UNITS) or 1.0
-    volt_scales = tuple(_unit_scale(names[j], _VOLT_UNITS) or 1.0 for j in volt_cols)
+    time_scale = _column_unit(names[time_col], _TIME_UNITS, "time", "s, ms, us, ns", name)
+    volt_scales = tuple(_column_unit(names[j], _VOLT_UNITS, "voltage", "V, mV, uV, kV", name)
+                        for j in volt_cols)
     return CsvLayout(data_line=start + 1, sep=sep, decimal=dec, n_fields=width, time_col=time_col,
                      volt_cols=tuple(volt_cols), names=names, time_scale=time_scale,
                      volt_scales=volt_scales)

@@ -145,6 +145,22 @@ def test_lying_sample_rate_refused(tmp_path):
         open_source(p)
 
 
+@pytest.mark.parametrize("field, offset, value, message", [
+    ("channels", 22, 3, "3 channel\\(s\\) of 16 bits need 6-byte frames"),
+    ("byte rate", 28, 1234, "byte rate 1234"),
+    ("channels", 22, 0, "zero channels"),
+])
+def test_inconsistent_wav_header_refused(tmp_path, field, offset, value, message):
+    # Microsoft WAVE fmt chunk: block_align = channels * bytes per sample, byte_rate = rate * block_align
+    data = bytearray(_reference("16", 1)[0])
+    fmt = "<H" if offset == 22 else "<I"
+    struct.pack_into(fmt, data, offset, value)
+    p = tmp_path / "lies.wav"
+    p.write_bytes(bytes(data))
+    with pytest.raises(InputError, match=message):
+        open_source(p)
+
+
 def test_unsupported_encoding_refused(tmp_path):
     # format tag 0x1234 is not a registered WAVE encoding
     p = tmp_path / "odd.wav"
@@ -277,6 +293,8 @@ def test_scope_two_voltage_columns_channel(tmp_path):
      + [f"{i * 1e-3:.6f},0.1" for i in range(31, 60)], "line 32: empty cell in the voltage column"),
     (["Time,Volt", "0.0,0.1"], "only one data row"),
     (["Model,X", "Serial,Y"], "no numeric data rows"),
+    (["Time (fortnights),CH1 (V)"] + [f"{i},0.1" for i in range(40)], "unknown time unit 'fortnights'"),
+    (["Time (s),CH1 (furlongs)"] + [f"{i},0.1" for i in range(40)], "unknown voltage unit 'furlongs'"),
 ])
 def test_scope_csv_errors_name_file_and_line(tmp_path, lines, message):
     p = tmp_path / "bad.csv"
