@@ -173,9 +173,10 @@ def track_source(source, settings, corrections: Corrections | None, run_dir: str
     totals = {"frames": len(frames), "tone_frames": int(has_tone.sum()), "duration_s": duration_s}
 
     existed = run_dir.exists()
-    prepare_run_dir(run_dir, force)
+    kept = _set_aside(run_dir) if existed else []
     writer = None
     try:
+        prepare_run_dir(run_dir, force)
         writer = RunWriter(run_dir, meta)
         for i in range(0, len(frames), _WRITE_BATCH):
             writer.append(frames.select(slice(i, i + _WRITE_BATCH)))
@@ -189,7 +190,11 @@ def track_source(source, settings, corrections: Corrections | None, run_dir: str
             except Exception:
                 pass
         _remove_created(run_dir, existed)
+        for old, new in kept:  # the previous run comes back as it was
+            os.replace(new, old)
         raise
+    for _old, new in kept:
+        new.unlink()
 
     return {
         "run_dir": str(run_dir),
@@ -210,6 +215,18 @@ def track_source(source, settings, corrections: Corrections | None, run_dir: str
         "start_utc_from": start_how,
         "amplitude_reference": source.amp_reference,
     }
+
+
+def _set_aside(run_dir: Path) -> list[tuple[Path, Path]]:
+    """Rename an old run's files (replaced under --force) so a failed write can put them back."""
+    kept = []
+    for fname in RUN_FILES:
+        old = run_dir / fname
+        if old.is_file():
+            new = run_dir / f".{fname}.replaced-{os.getpid()}"
+            os.replace(old, new)
+            kept.append((old, new))
+    return kept
 
 
 def _remove_created(run_dir: Path, existed: bool) -> None:

@@ -163,9 +163,11 @@ def test_existing_run_dir_needs_force(tmp_path):
 @pytest.mark.parametrize("existed", [False, True])
 def test_failure_while_writing_leaves_no_run(tmp_path, monkeypatch, existed):
     run = tmp_path / "run"
+    old = {"notes.txt": "mine", "log.csv": "t_s,freq_hz\n0.1,1000\n", "run.json": "{}\n"}
     if existed:
         run.mkdir()
-        (run / "notes.txt").write_text("mine")
+        for name, text in old.items():
+            (run / name).write_text(text)
     calls = []
 
     def broken_append(self, frames):
@@ -176,8 +178,8 @@ def test_failure_while_writing_leaves_no_run(tmp_path, monkeypatch, existed):
     with pytest.raises(OSError):
         track_source(ToneSource(1000.0, 1.0, FS, amplitude=0.3), TrackerSettings(), None, run, force=True)
     assert calls
-    if existed:
-        assert sorted(p.name for p in run.iterdir()) == ["notes.txt"]
+    if existed:  # the old run replaced under --force is back, byte for byte, and nothing else
+        assert {p.name: p.read_text() for p in run.iterdir()} == old
     else:
         assert not run.exists()
 
