@@ -9,14 +9,17 @@ The signal is cut into overlapping frames (default 85 ms every 20 ms). Each fram
    taken as the fundamental, because a pulse-shaped oscillator output (a 555, a comparator) can
    carry harmonics as strong as or stronger than its fundamental after AC coupling. Mains hum lines
    (50/60 Hz and harmonics, when the 50/60 Hz line itself is present) are excluded from the search
-   unless a band is given. The coarse sub-bin offset comes from Grandke's two-bin Hann formula.
+   unless a band is given. A tone must clear both a global threshold (median noise floor) and a
+   local ordered-statistic CFAR test, each set for about 1e-3 false alarms per frame. The coarse
+   sub-bin offset comes from Grandke's two-bin Hann formula.
 2. **Fine stage, rectangular window.** The DTFT of the frame (DC removed) is evaluated at
    ``f_coarse +- 1/2`` bin and one Aboutanios-Mulgrew interpolation step is solved in closed form
    with the exact finite-N Dirichlet kernel (so it is exact for a noiseless complex tone, like
    Candan's 2013 correction of Jacobsen's estimator). Before the step, the leakage of the tone's
-   own negative-frequency image, of its harmonics (amplitudes from the Hann spectrum) and of the
-   removed frame mean is subtracted analytically; this removes the bias a rectangular window
-   otherwise shows for real signals and pulse waves. The variance is close to the Cramer-Rao bound.
+   own negative-frequency image, of its harmonics (amplitudes from the Hann spectrum), of other
+   strong lines (hum, a second oscillator) and of the removed frame mean is subtracted
+   analytically; this removes the bias a rectangular window otherwise shows for real signals and
+   pulse waves. The variance is close to the Cramer-Rao bound.
 3. **Optional refinement** (``refine=True``): IEEE Std 1057 four-parameter least-squares sine fit
    started from the fine estimate.
 
@@ -289,7 +292,7 @@ class _Plan:
                 cells = _clamp(c + self.local_offsets, 2, nbins - 1)
                 self.hum.append((np.arange(c - 1, c + 2), np.array([c - 2, c + 2]), mask, cells))
         self.near_bin = None if settings.near_hz is None else settings.near_hz / self.df
-        # blocked DTFT: frame (zero-padded) reshaped to rows of DTFT_BLOCK samples
+        # fine-stage DTFT: frame (zero-padded) reshaped to rows of DTFT_BLOCK samples
         self.rows = -(-n // DTFT_BLOCK)
         self.npad = self.rows * DTFT_BLOCK
         self.rows_hi = -(-self.rows // 8)  # row phasors as a (rows_hi x 8) outer product
