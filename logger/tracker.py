@@ -265,14 +265,12 @@ class _Plan:
                                              np.arange(LOCAL_GUARD, LOCAL_GUARD + half)])
         self.local_ratio = os_cfar_factor(LOCAL_CELLS, LOCAL_CELLS // 2, FALSE_ALARM_PER_FRAME / m_search)
         # subharmonic hypotheses: positions h/m of the strongest line, h = 1..m, m = 2..M
-        ratios, ms, hs = [], [], []
+        ratios, hs = [], []
         for m in range(2, MAX_HARMONIC_SEARCH + 1):
             for h in range(1, m + 1):
                 ratios.append(h / m)
-                ms.append(m)
                 hs.append(h)
         self.sub_ratio = np.array(ratios)
-        self.sub_m = np.array(ms)
         self.sub_start = np.flatnonzero(np.array(hs) == 1)  # first column of each divisor's group
         self.sub_need = np.array([math.ceil(m / 2) for m in range(2, MAX_HARMONIC_SEARCH + 1)])
         self.divisors = np.arange(1, MAX_HARMONIC_SEARCH + 1, dtype=float)
