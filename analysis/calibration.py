@@ -26,7 +26,7 @@ from .curvefit import CurveFit, FitError, fit_dipole, fit_power_law
 from .detection import (DEFAULT_BOOTSTRAP, DEFAULT_K, DEFAULT_SEED, RangeResult, detection_range,
                         noise_at_dwell_hz, numeric_range_mm)
 from .logread import FrequencyLog, read_log
-from .steps import DEFAULT_SETTLE_S, Point, Segment, Step, combine_repeats, compute_steps
+from .steps import DEFAULT_SETTLE_S, MIN_FRAMES, Point, Segment, Step, combine_repeats, compute_steps
 
 
 @dataclass
@@ -197,6 +197,11 @@ def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None 
     warnings: list[str] = []
     if log.interrupted:
         warnings.append("the run was interrupted: the log ends early")
+    dropped = sum(1 for m in markers if not m.is_baseline) - len(steps)
+    dropped_b = sum(1 for m in markers if m.is_baseline) - len(bases)
+    if dropped or dropped_b:
+        warnings.append(f"{dropped} target and {dropped_b} baseline stretch(es) left out: fewer than "
+                        f"{MIN_FRAMES} usable frames after settling (no tone, gaps, or too short)")
     n_unbr = sum(1 for s in steps if not s.bracketed)
     if n_unbr:
         warnings.append(f"{n_unbr} target stretch(es) have a baseline on one side only: drift not removed there")

@@ -116,3 +116,22 @@ def test_run_without_markers_is_refused(tmp_path):
         w.append(FrameTable(t, np.full(100, 1000.0), np.zeros(100), np.zeros(100)))
     with pytest.raises(InputError, match="no markers"):
         analyse_run(d)
+
+
+def test_stretches_without_usable_frames_are_reported(tmp_path):
+    # blank the tone (NaN frequency) through one target stretch: it is left out with a warning
+    import numpy as np
+    import pandas as pd
+
+    truth = make_run(tmp_path / "r", {"nail": (-25.0, 25.0)}, distances_mm=(10, 20, 40), dwell_s=4.0, seed=23)
+    log = pd.read_csv(tmp_path / "r" / "log.csv", dtype={"flags": str}, keep_default_na=False)
+    m = next(mk for mk in truth.markers if mk.target == "nail" and mk.distance_mm == 20.0)
+    sel = (log["t_s"] >= m.start_s) & (log["t_s"] < m.end_s)
+    log["freq_hz"] = log["freq_hz"].astype(str)
+    log.loc[sel, "freq_hz"] = ""
+    log.loc[sel, "flags"] = "no_tone"
+    log.to_csv(tmp_path / "r" / "log.csv", index=False)
+    res = analyse_run(tmp_path / "r", n_boot=0)
+    assert [p.distance_mm for p in res.target("nail").points] == [10.0, 40.0]
+    assert any("1 target and 0 baseline stretch(es) left out" in w for w in res.warnings)
+    assert np.isfinite(res.target("nail").points[0].shift_hz)
