@@ -38,9 +38,9 @@ def pulse_wave(f, duty, seconds, ac_coupling_hz=None, amp=0.45, seed=0, noise=1e
     x = np.zeros(t.size)
     for hh, c in zip(h, coef):
         x += abs(c) * np.cos(2 * np.pi * hh * f * t + np.angle(c) + 0.3 * hh)
-    x = amp * x / np.abs(x).max()
-    x += noise * np.random.default_rng(seed).standard_normal(t.size)
-    return x, np.abs(coef)
+    scale = amp / np.abs(x).max()
+    x = scale * x + noise * np.random.default_rng(seed).standard_normal(t.size)
+    return x, scale * np.abs(coef)  # the signal and the peak amplitude of every harmonic
 
 
 # ----------------------------------------------------------------------------- accuracy
