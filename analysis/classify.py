@@ -3,10 +3,10 @@
 A permeable (ferrous) target concentrates the coil's field: inductance up, frequency down.
 A non-ferrous conductor carries eddy currents that oppose the field: inductance down, frequency
 up (common practice; Wait 1951 gives both limits for a sphere). That mapping from frequency to
-inductance holds for an LC oscillator read directly ("normal" polarity). A divider or prescaler
-read at an aliased frequency in an even Nyquist zone, a beat against a reference oscillator
-below the search frequency, or an oscillator topology whose frequency rises with inductance all
-invert it ("inverted" polarity). A reference target of known kind checks the polarity.
+inductance holds for an LC oscillator read directly ("normal" polarity). A tone (or a
+prescaler's output) aliased from an even Nyquist zone and logged without the zone correction, a
+beat against a reference oscillator above the search frequency, or an oscillator topology whose
+frequency rises with inductance all invert it ("inverted" polarity). A reference target of known kind checks the polarity.
 
 Steels at higher frequencies can give a mixed or even eddy-dominated response (eddy currents
 oppose the permeable response and can win), so a steel target may read as non-ferrous or change
@@ -33,10 +33,11 @@ MIXED_STEEL_CAUTION = ("Some steels, especially at higher frequencies, respond a
                        "permeable and eddy-current targets and can read as non-ferrous or change "
                        "sign with distance; the call describes the response, not the metal.")
 POLARITY_CAUTION = ("The call assumes the logged frequency falls when inductance rises (LC "
-                    "oscillator read directly). A prescaler or divider read in an even Nyquist "
-                    "zone, a beat against a higher reference, or another oscillator topology "
-                    "inverts this: check with a reference target of known kind "
-                    "(--reference-target NAME=ferrous) and use --polarity inverted if needed.")
+                    "oscillator read directly). A tone aliased from an even Nyquist zone (unless "
+                    "the log was made with the matching --nyquist-zone correction), a beat against "
+                    "a higher reference, or another oscillator topology inverts this: check with a "
+                    "reference target of known kind (--reference-target NAME=ferrous) and use "
+                    "--polarity inverted if needed.")
 
 
 @dataclass(frozen=True)
