@@ -28,6 +28,10 @@ from .detection import (DEFAULT_BOOTSTRAP, DEFAULT_K, DEFAULT_SEED, RangeResult,
 from .logread import FrequencyLog, read_log
 from .steps import DEFAULT_SETTLE_S, MIN_FRAMES, Point, Segment, Step, combine_repeats, compute_steps
 
+#: baseline noise this many times the typical step error means drift, not noise, sets the
+#: threshold (for white or short-correlated noise the two are about equal)
+DRIFT_DOMINATED_RATIO = 10.0
+
 
 @dataclass
 class Prediction:
@@ -224,6 +228,12 @@ def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None 
     else:
         thr, thr_src = math.nan, "none"
         warnings.append("no noise estimate from the baselines and no --threshold-hz: ranges undefined")
+    typical_err = float(np.median([s.stderr_hz for s in steps]))
+    if math.isfinite(noise_hz) and typical_err > 0 and noise_hz > DRIFT_DOMINATED_RATIO * typical_err:
+        warnings.append(f"the baseline noise at the dwell ({noise_hz:.3g} Hz) is {noise_hz / typical_err:.0f} x the "
+                        f"typical step error ({typical_err:.3g} Hz): drift or slow wander dominates it"
+                        + (" and sets the threshold; let the oscillator warm up, shorten the dwell, or give "
+                           "--threshold-hz" if thr_src != "given" else ""))
     radius = None
     if coil is not None:
         radius = float(coil.mean_radius_mm)

@@ -135,3 +135,14 @@ def test_stretches_without_usable_frames_are_reported(tmp_path):
     assert [p.distance_mm for p in res.target("nail").points] == [10.0, 40.0]
     assert any("1 target and 0 baseline stretch(es) left out" in w for w in res.warnings)
     assert np.isfinite(res.target("nail").points[0].shift_hz)
+
+
+@pytest.mark.parametrize("drift, warned", [(0.0, False), (1.0, True)])
+def test_drift_dominated_threshold_is_pointed_out(tmp_path, drift, warned):
+    # white-ish noise: the Allan deviation at the dwell is about the error of a dwell mean (NIST
+    # SP 1065, white FM), so comparable to a step's error; a drift of 1 Hz/min adds about
+    # drift x dwell / sqrt(2) = 0.24 Hz at a 20 s dwell, far above the step errors (~1e-3 Hz)
+    make_run(tmp_path / "r", {"nail": (-25.0, 25.0)}, distances_mm=(10, 40), dwell_s=20.0, noise_hz=0.02,
+             phi=0.5, drift_hz_per_min=drift, seed=24)
+    res = analyse_run(tmp_path / "r", n_boot=0)
+    assert any("drift or slow wander" in w for w in res.warnings) is warned
