@@ -461,13 +461,16 @@ class _Plan:
         mean = total / n
         wg_conj = np.conj(dirichlet(g, n))
         s_pm -= mean[:, None] * wg_conj
-        s_pm -= self._other_lines_leakage(power, spec, detect, k, fc, hvalid, g, wg_conj)
+        lines = self._other_lines(power, spec, detect, k, fc, hvalid)
+        s_pm -= self._lines_leakage(lines, g, wg_conj)
         f_fine = fc.copy()
-        a1 = amp_h[:, 0]
+        ah = np.where(hvalid, amp_h, 0.0)
+        target = np.zeros(nf, dtype=np.int64)
         for _ in range(FINE_PASSES):
-            f_fine, a1 = self._am_step(s_pm, g, wg_conj, f_fine, a1, amp_h, hvalid)
+            f_fine, ah[:, 0] = self._am_step(s_pm, g, wg_conj, f_fine, ah, target)
         freq_bins = f_fine
-        amp = 2 * np.abs(a1)
+        amp = 2 * np.abs(ah[:, 0])
+
 
         if s.refine and have.any():
             fit_rows = np.flatnonzero(have)
@@ -501,8 +504,13 @@ class _Plan:
         noise_bin = np.take_along_axis(noise_sorted, rank[:, None], axis=1)[:, 0].astype(float) / math.log(2.0)
         noise_var = noise_bin / self.win_power  # white-equivalent noise variance per sample
         if n_h > 1:
-            freq_bins = self._with_harmonics(freq_bins, amp, amp_h, hvalid, hbin, around[:, :n_h - 1],
-                                             noise_var, have)
+            # harmonics: first their Hann estimates; with that f0 (good enough to place even a high
+            # harmonic within a small fraction of a bin) the most informative one goes through the
+            # fine stage, and the combination is formed again with it
+            args = (amp, amp_h, hvalid, hbin, around[:, :n_h - 1], noise_var, have)
+            f_comb = self._with_harmonics(freq_bins, *args)
+            fine_h = self._fine_harmonic(xpad, mean, lines, f_comb, ah, hvalid)
+            freq_bins = self._with_harmonics(freq_bins, *args, harmonic_fine=fine_h)
         with np.errstate(divide="ignore", invalid="ignore"):
             snr_db = 10 * np.log10((amp * amp / 2) / noise_var)
             amp_dbfs = 20 * np.log10(amp)
@@ -530,7 +538,33 @@ class _Plan:
         snr_db = np.where(have, snr_db, np.nan)
         return freq_hz, amp_dbfs, snr_db, fl_arr
 
-    def _with_harmonics(self, f1, amp, amp_h, hvalid, hbin, around, noise_var, have):
+    def _fine_harmonic(self, xpad, mean, lines, f0, ah, hvalid):
+        """The fine stage again, on each frame's most informative harmonic (largest h^2 |a_h|^2).
+
+        Returns (column, f0 estimate from it in bins, usable) per frame. Its variance is the
+        single-tone bound of that harmonic divided by h^2, against about 3.5 times that for the
+        Grandke estimate it replaces.
+        """
+        n = self.n
+        n_h = ah.shape[1]
+        rows = np.arange(f0.shape[0])
+        info = np.where(hvalid[:, 1:], self.harm[None, 1:n_h] ** 2 * np.abs(ah[:, 1:]) ** 2, 0.0)
+        best = 1 + np.argmax(info, axis=1)
+        hstar = self.harm[best]
+        g = (hstar * f0)[:, None] + self.half_pm[None, :]
+        s_pm, _ = self.dtft_pair(xpad, g[:, 0])
+        wg_conj = np.conj(dirichlet(g, n))
+        s_pm -= mean[:, None] * wg_conj
+        s_pm -= self._lines_leakage(lines, g, wg_conj)
+        ah = ah.copy()
+        f_est = f0.copy()
+        for _ in range(FINE_PASSES):
+            f_target, ah[rows, best] = self._am_step(s_pm, g, wg_conj, f_est, ah, best)
+            f_est = f_target / hstar
+        usable = hvalid[rows, best] & (info[rows, best - 1] > 0) & (g[:, 0] < self.nbins - 2)
+        return best, f_est, usable
+
+    def _with_harmonics(self, f1, amp, amp_h, hvalid, hbin, around, noise_var, have, harmonic_fine=None):
         """Combine the fundamental's estimate with its harmonics' (all in bins).
 
         Harmonic h measures h*f0 with the same absolute accuracy, so its estimate of f0 is h times
@@ -555,6 +589,12 @@ class _Plan:
             # every estimate of f0 (column 0: the fundamental's fine estimate) and its variance
             est = np.concatenate([f1[:, None], f_h / hnum], axis=1)
             var = np.concatenate([var_1[:, None], var_h], axis=1)
+            if harmonic_fine is not None:
+                # the most informative harmonic went through the fine stage: near its bound
+                col, f_fine_h, usable = harmonic_fine
+                rows_u = np.flatnonzero(usable)
+                est[rows_u, col[rows_u]] = f_fine_h[rows_u]
+                var[rows_u, col[rows_u]] /= GRANDKE_VARIANCE_FACTOR
             valid = np.concatenate([have[:, None], hvalid[:, 1:] & have[:, None]], axis=1)
             valid &= np.isfinite(est) & np.isfinite(var) & (var > 0)
             # reference: the most precise estimate; keep those within 4 sigma of it (a stray
@@ -570,14 +610,14 @@ class _Plan:
                      / np.cumsum(w, axis=1)[:, -1])
         return f1 + np.where(np.isfinite(shift), shift, 0.0)
 
-    def _other_lines_leakage(self, power, spec, detect, k, fc, hvalid, g, wg_conj):
-        """Leakage into the DTFTs at ``g`` of strong lines that are not the tone's cancelled harmonics.
+    def _other_lines(self, power, spec, detect, k, fc, hvalid):
+        """Strong lines that are not the tone's cancelled harmonics: (frequencies, amplitudes).
 
         Mains hum or a second oscillator leaks into a rectangular-window DTFT as 1/distance; the
         strongest OTHER_LINES such lines (local maxima of the Hann spectrum within
-        OTHER_LINES_RANGE_DB of the tone) are located by Grandke's interpolation, their complex
-        amplitudes read through the Hann kernel, and their exact rectangular-window contribution
-        (line, its negative-frequency image, and its share of the subtracted frame mean) returned.
+        OTHER_LINES_RANGE_DB of the tone) are located by Grandke's interpolation and their complex
+        amplitudes read through the Hann kernel. Returns (F, L) arrays (amplitude 0 = no line),
+        or None when no frame has such a line.
         """
         n = self.n
         nf = power.shape[0]
@@ -597,9 +637,8 @@ class _Plan:
         cancelled = (h >= 1) & (h <= n_h) & (np.abs(c - h * fc[r]) <= 2.0)
         cancelled &= hvalid[r, _clamp(h - 1, 0, n_h - 1)] | (h == 1)
         r, c = r[~cancelled], c[~cancelled]
-        out = np.zeros((nf, 2), dtype=complex)
         if r.size == 0:
-            return out
+            return None
         # strongest first within each frame, then keep OTHER_LINES per frame
         order = np.lexsort((-power[r, c], r))
         r, c = r[order], c[order]
@@ -612,19 +651,27 @@ class _Plan:
         line_bin[r, rank] = c
         line_on[r, rank] = True
         mags = np.sqrt(power[rows[:, None, None], line_bin[:, :, None] + self.step3[None, None, :]].astype(float))
-        mags = (mags[:, :, 1], mags[:, :, 0], mags[:, :, 2])  # peak, left, right
-        f_line = line_bin + grandke_hann(mags[0], mags[1], mags[2])
+        f_line = line_bin + grandke_hann(mags[:, :, 1], mags[:, :, 0], mags[:, :, 2])
         amp = np.where(line_on, spec[rows[:, None], line_bin].astype(complex) / hann_kernel(f_line - line_bin, n), 0.0)
+        return f_line, amp
+
+    def _lines_leakage(self, lines, g, wg_conj):
+        """Exact rectangular-window contribution of ``lines`` at the DTFT points ``g`` (F, 2):
+        each line, its negative-frequency image, and its share of the subtracted frame mean."""
+        out = np.zeros(g.shape, dtype=complex)
+        if lines is None:
+            return out
+        f_line, amp = lines
+        n = self.n
+        n_l = f_line.shape[1]
         g0, g1 = g[:, :1], g[:, 1:]
         ker = dirichlet(np.concatenate([f_line, f_line - g0, f_line - g1, f_line + g0, f_line + g1], axis=1), n)
         k_f, k_m0, k_m1, k_p0, k_p1 = (ker[:, i * n_l:(i + 1) * n_l] for i in range(5))
-        mean_part = 2 * np.real(amp * k_f) / n
-        # column-by-column sums: a frame's result does not depend on the chunk's column count
+        mu = np.cumsum(2 * np.real(amp * k_f) / n, axis=1)[:, -1]
+        # running sums: a frame's result does not depend on the chunk's column count
         for j, (k_minus, k_plus) in enumerate(((k_m0, k_p0), (k_m1, k_p1))):
             terms = amp * k_minus + np.conj(amp) * np.conj(k_plus)
-            acc = np.cumsum(terms, axis=1)[:, -1]
-            mu = np.cumsum(mean_part, axis=1)[:, -1]
-            out[:, j] = acc - mu * wg_conj[:, j]
+            out[:, j] = np.cumsum(terms, axis=1)[:, -1] - mu * wg_conj[:, j]
         return out
 
     def _grandke(self, power, k):
@@ -647,18 +694,20 @@ class _Plan:
         fallback = np.argmax(p, axis=1)
         return np.where(np.isfinite(dist[np.arange(p.shape[0]), best]), best, fallback)
 
-    def _am_step(self, s_pm, g, wg_conj, f_est, a1, amp_h, hvalid):
-        """One closed-form AM step on DTFTs at g = (fc+1/2, fc-1/2) after removing known leakage.
+    def _am_step(self, s_pm, g, wg_conj, f0_est, ah, target):
+        """One closed-form AM step for harmonic ``target + 1`` on DTFTs at its ``centre +- 1/2``.
 
-        ``wg_conj`` is conj(dirichlet(g)), the kernel of a constant at the two evaluation points.
+        ``g`` (F, 2) are the evaluation points, ``wg_conj`` = conj(dirichlet(g)) the kernel of a
+        constant there, ``f0_est`` the current fundamental (bins), ``ah`` (F, H) the complex
+        amplitudes of the harmonics (0 where none), ``target`` (F,) the column being estimated.
+        The leakage of every other modelled component is removed first. Returns the target's
+        frequency (bins) and complex amplitude.
         """
         n = self.n
-        n_h = amp_h.shape[1]
-        hf = f_est[:, None] * self.harm[None, :n_h]  # (F, H)
-        ah = amp_h.copy()
-        ah[:, 0] = a1
-        ah = np.where(hvalid, ah, 0.0)
+        n_h = ah.shape[1]
+        hf = f0_est[:, None] * self.harm[None, :n_h]  # (F, H)
         ah_c = np.conj(ah)
+        others = np.arange(n_h)[None, :] != target[:, None]
         g0, g1 = g[:, :1], g[:, 1:]
         # every kernel value this step needs, in one call: at hf, hf + g, hf - g
         ker = dirichlet(np.concatenate([hf, hf + g0, hf + g1, hf - g0, hf - g1], axis=1), n)
@@ -666,13 +715,11 @@ class _Plan:
         # mean of the modelled periodic part (the frame mean was subtracted before the DTFT);
         # the kernel at -nu is the conjugate of the kernel at nu
         mean_terms = 2 * np.real(ah * k_hf)
-        # leakage at each evaluation point: images of fundamental and harmonics, and the
-        # positive-frequency harmonics (not the fundamental itself)
+        # leakage at each evaluation point: images of all components, and the positive-frequency
+        # components other than the target
         leak_terms = []
         for k_plus, k_minus in ((k_p0, k_m0), (k_p1, k_m1)):
-            t = ah_c * np.conj(k_plus)
-            t[:, 1:] += ah[:, 1:] * k_minus[:, 1:]
-            leak_terms.append(t)
+            leak_terms.append(ah_c * np.conj(k_plus) + np.where(others, ah * k_minus, 0.0))
         # running (sequential) sums keep each frame's result independent of the chunk's column
         # count: trailing all-zero columns add exact zeros
         mu = np.cumsum(mean_terms, axis=1)[:, -1] / n
