@@ -55,6 +55,8 @@ _NOT_FOR_BASELINE = _flags.UNUSABLE | _flags.LOW_SNR | _flags.OVERFLOW
 PEAK_FALL_DB_PER_S = 20.0
 #: a clipping warning stays on this long after the last clipped block
 CLIP_HOLD_S = 1.0
+#: the delivered-rate measurement starts this far into the run
+RATE_SETTLE_S = 2.0
 #: at most this many fault events are listed in run.json (all are counted)
 _MAX_FAULTS_LISTED = 1000
 
@@ -204,6 +206,7 @@ class CaptureEngine:
         self._started = False
         self._arrival_first: tuple[int, float] | None = None  # (samples so far, host clock) per block
         self._arrival_last: tuple[int, float] | None = None
+        self._rate_settle_samples = 1 << 62  # set once the stream rate is known
         self._adc_first: tuple[int, float] | None = None
         self._adc_last: tuple[int, float] | None = None
         self._baselines: list[dict] = []
@@ -236,6 +239,7 @@ class CaptureEngine:
         try:
             self.sample_rate_hz = float(self.source.sample_rate_hz)
             self._batch_samples = max(1, int(self.track_batch_s * self.sample_rate_hz))
+            self._rate_settle_samples = int(RATE_SETTLE_S * self.sample_rate_hz)
             if self._tracker_factory is None:
                 from .tracker import FrameTracker
 
@@ -340,7 +344,8 @@ class CaptureEngine:
         start = self._delivered
         self._delivered = start + n
         self._arrival_last = (start + n, time.monotonic())
-        if self._arrival_first is None:
+        if self._arrival_first is None and start >= self._rate_settle_samples:
+            # start-up bursts (buffers filled before the first callback) would bias the rate
             self._arrival_first = self._arrival_last
         try:
             self._queue.put_nowait((block, adc_time_s, overflow, start, self._lost_pending))
@@ -412,7 +417,7 @@ class CaptureEngine:
         if msg is None and not self._stop_request.is_set() and not self.finished.is_set():
             idle = time.monotonic() - self._last_block_time
             # some devices take seconds to deliver their first block
-            limit = self.stall_timeout_s if self._arrival_first is not None else max(10.0, self.stall_timeout_s)
+            limit = self.stall_timeout_s if self._arrival_last is not None else max(10.0, self.stall_timeout_s)
             if idle > limit:
                 msg = f"no audio for {idle:.1f} s (device removed or stream stopped)"
         if msg is None or self._ended_by:
