@@ -80,7 +80,7 @@ def test_played_tone_sequence_is_logged(virtual_audio, tmp_path):
         assert hit.sum() * HOP_S > seconds_each - 2 * N / FS - 0.1, f"{tone} Hz: only {hit.sum()} frames"
         firsts.append(t[hit][0])
     assert firsts == sorted(firsts), "tones logged out of order"
-    assert np.diff(firsts) == pytest.approx([seconds_each, seconds_each], abs=0.05)
+    assert np.diff(firsts) == pytest.approx([seconds_each, seconds_each], abs=0.1)
     assert summary["status"] == "complete" and summary["gaps"] == 0 and summary["device_errors"] == 0
     src = log.meta["source"]
     assert src["kind"] == "soundcard" and src["sample_rate_hz"] == FS and src["input_latency_s"] > 0
