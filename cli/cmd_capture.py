@@ -25,7 +25,20 @@ WIRING_CAUTION = (
 _STATE_KEY = "wiring_caution_shown"
 
 
+class _KeepEpilog(argparse.HelpFormatter):
+    """Wrap the description as usual but keep the epilog's paragraphs (the caution stands apart)."""
+
+    def add_text(self, text):
+        if text and "CAUTION" in text:
+            paragraphs = [textwrap.fill(" ".join(p.split()), width=78) for p in text.split("\n\n")]
+            self._add_item(lambda t: t + "\n", ["\n\n".join(paragraphs)])
+        else:
+            super().add_text(text)
+
+
 def register(subparsers) -> None:
+    from coilshift.logger.live_view import KEY_MARKER, KEY_QUIT, KEY_REZERO
+
     p = subparsers.add_parser(
         "capture",
         help="live capture from a soundcard input: track, log shifts, live readout",
@@ -33,7 +46,11 @@ def register(subparsers) -> None:
                     "write a run folder (log.csv, run.json, markers.csv; the same format as "
                     "'track'), flushed to disk at least once a second so a crash keeps the data. "
                     "A live panel shows frequency, shift, level, SNR and faults; keys re-zero the "
-                    "baseline, add markers and quit. " + WIRING_CAUTION,
+                    "baseline, add markers and quit.",
+        epilog=f"keys in the live panel: {KEY_REZERO} re-zero the baseline, {KEY_MARKER} add a marker "
+               f"(label 'baseline', 'end', or a target and its distance in mm, e.g. 'coin 50'), "
+               f"{KEY_QUIT} quit (Ctrl-C also ends the run cleanly).\n\n" + WIRING_CAUTION,
+        formatter_class=_KeepEpilog,
     )
     p.add_argument("-o", "--out", required=True, metavar="RUN_DIR", help="run folder to create (new or empty)")
     p.add_argument("--force", action="store_true", help="replace the run files in an existing folder")
