@@ -229,6 +229,6 @@ def write_outputs(results: list[CalibrationResult], out_dir: str | os.PathLike) 
 
 
 def _jsonable(obj):
-    from coilshift.cli.common import to_jsonable
+    from coilshift.logger.atomic import to_jsonable
 
     return to_jsonable(obj)

@@ -3,30 +3,11 @@
 from __future__ import annotations
 
 import json
-import math
 import sys
 from pathlib import Path
 
+from coilshift.logger.atomic import to_jsonable  # noqa: F401  (re-exported for the commands)
 from coilshift.logger.errors import InputError
-
-
-def to_jsonable(obj):
-    """Replace NaN/inf by None and numpy scalars/arrays by Python values, recursively."""
-    try:
-        import numpy as np
-    except ImportError:  # pragma: no cover
-        np = None
-    if isinstance(obj, dict):
-        return {str(k): to_jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [to_jsonable(v) for v in obj]
-    if np is not None and isinstance(obj, np.ndarray):
-        return [to_jsonable(v) for v in obj.tolist()]
-    if np is not None and isinstance(obj, np.generic):
-        obj = obj.item()
-    if isinstance(obj, float) and not math.isfinite(obj):
-        return None
-    return obj
 
 
 def print_json(obj) -> None:

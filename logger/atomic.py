@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import math
 import os
 import tempfile
 from pathlib import Path
@@ -36,8 +37,25 @@ def write_text_atomic(path: str | os.PathLike, text: str) -> None:
 
 
 def write_json_atomic(path: str | os.PathLike, obj) -> None:
-    """Write ``obj`` as indented JSON, atomically."""
-    write_text_atomic(path, json.dumps(obj, indent=2, sort_keys=False, allow_nan=False) + "\n")
+    """Write ``obj`` as indented JSON, atomically (NaN and inf become null, see :func:`to_jsonable`)."""
+    write_text_atomic(path, json.dumps(to_jsonable(obj), indent=2, sort_keys=False, allow_nan=False) + "\n")
+
+
+def to_jsonable(obj):
+    """Replace NaN/inf by None and numpy scalars/arrays by Python values, recursively."""
+    import numpy as np
+
+    if isinstance(obj, dict):
+        return {str(k): to_jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [to_jsonable(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return [to_jsonable(v) for v in obj.tolist()]
+    if isinstance(obj, np.generic):
+        obj = obj.item()
+    if isinstance(obj, float) and not math.isfinite(obj):
+        return None
+    return obj
 
 
 def _fsync_dir(folder: Path) -> None:
