@@ -32,14 +32,11 @@ from scipy import optimize
 
 from coilshift.logger.errors import InputError
 
+from .defaults import DEFAULT_BOOTSTRAP, DEFAULT_K, DEFAULT_SEED  # noqa: F401  (re-exported)
 from .curvefit import DIPOLE, CurveFit, FitError, fit_dipole, fit_power_law
 
-#: default threshold factor on the noise at the dwell time (see module docstring)
-DEFAULT_K = 5.0
 #: a range farther than this times the farthest calibration distance is not reported
 EXTRAPOLATION_LIMIT = 1.5
-DEFAULT_BOOTSTRAP = 1000
-DEFAULT_SEED = 0
 
 
 def closed_form_range_mm(a_hz: float, radius_mm: float, threshold_hz: float, offset_mm: float = 0.0) -> float:

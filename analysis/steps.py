@@ -24,8 +24,8 @@ from scipy import stats
 from coilshift.logger.errors import InputError
 from coilshift.logger.markers import Marker
 
-#: default time discarded at the start and at the end of every stretch (target moves, hands)
-DEFAULT_SETTLE_S = 1.0
+from .defaults import DEFAULT_SETTLE_S  # noqa: F401  (re-exported)
+
 #: never trim more than this fraction of a stretch from each end, so short stretches keep data
 MAX_TRIM_FRACTION = 0.25
 #: a stretch needs at least this many usable frames to give a mean with an error

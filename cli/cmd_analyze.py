@@ -52,8 +52,7 @@ def _non_negative(text: str) -> float:
 def add_analysis_options(p: argparse.ArgumentParser, settle: bool = True) -> None:
     """Options shared by ``analyze`` and ``calibrate`` (which analyses its run at the end and has
     its own ``--settle``, applied while recording, so it passes ``settle=False``)."""
-    from coilshift.analysis.detection import DEFAULT_BOOTSTRAP, DEFAULT_K, DEFAULT_SEED
-    from coilshift.analysis.steps import DEFAULT_SETTLE_S
+    from coilshift.analysis.defaults import DEFAULT_BOOTSTRAP, DEFAULT_K, DEFAULT_SEED, DEFAULT_SETTLE_S
 
     g = p.add_argument_group("analysis")
     g.add_argument("--threshold-hz", type=_positive, metavar="X",
