@@ -85,6 +85,7 @@ def capture(device: str, rate: int, seconds: float, sink: str, settle_s: float =
             "tone_hz_last": round(snap.freq_hz, 4),
             "overflows": summary["overflows"],
             "queue_overruns": summary["queue_overruns"],
+            "dropped_blocks": summary["dropped_blocks"],
             "lost_samples": summary["lost_samples"],
             "device_errors": summary["device_errors"],
             "deepest_queue_percent": round(100 * deepest[0], 1),
@@ -123,7 +124,8 @@ def main(argv=None) -> int:
               f"tone {r['tone_hz_last']} Hz)")
     d = results["drops"]
     print(f"{args.minutes:g} min at {d['rate_hz'] / 1000:g} kHz: {d['overflows']} overflows, "
-          f"{d['queue_overruns']} queue overruns, {d['lost_samples']} samples lost, "
+          f"{d['dropped_blocks']} dropped blocks ({d['queue_overruns']} queue overruns), "
+          f"{d['lost_samples']} samples lost, "
           f"{d['device_errors']} device errors; deepest queue {d['deepest_queue_percent']}%; "
           f"CPU {d['cpu_percent_of_one_core']:.2f}%; delivered rate {d['delivered_rate_hz']}")
     return 0

@@ -656,6 +656,7 @@ class CaptureEngine:
             "overflows": self._counts["overflows"],
             "gaps": self._counts["gaps"],
             "queue_overruns": self._counts["queue_overruns"],
+            "dropped_blocks": self._overrun_blocks,
             "lost_samples": self._counts["lost_samples"],
             "device_errors": self._counts["device_errors"],
             "faults": self._faults,

@@ -124,6 +124,7 @@ class SoundcardSource:
         self.sample_rate_hz = self.requested_rate_hz
         self._stream = None
         self._closing = False
+        self.input_latency_s: float | None = None
 
     def open(self, deliver, fail) -> None:
         sd = _sd()
@@ -151,6 +152,7 @@ class SoundcardSource:
             raise InputError(f"device {self.info['index']} ({self.info['name']}): cannot open input at "
                              f"{self.requested_rate_hz:g} Hz, {ch + 1} channel(s): {exc}") from None
         self.sample_rate_hz = float(self._stream.samplerate)
+        self.input_latency_s = float(self._stream.latency)  # what the stream really runs with
 
     def close(self) -> None:
         self._closing = True
@@ -172,8 +174,8 @@ class SoundcardSource:
              "device_channels": self.info["max_input_channels"],
              "requested_rate_hz": self.requested_rate_hz, "sample_rate_hz": self.sample_rate_hz,
              "dtype": "float32", "latency_hint": self.latency}
-        if self._stream is not None:
-            d["input_latency_s"] = float(self._stream.latency)
-            d["blocksize"] = int(self._stream.blocksize)
+        if self.input_latency_s is not None:
+            d["input_latency_s"] = self.input_latency_s
+            d["blocksize"] = self.blocksize or "variable (host's choice)"
         return d
 

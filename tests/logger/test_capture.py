@@ -123,6 +123,7 @@ def test_queue_overrun_becomes_a_gap_row_at_the_right_time(scripted_source, tmp_
     summary = finish(eng, src)
     lost = 6 * BLOCK
     assert summary["lost_samples"] == lost and summary["gaps"] == 1 and summary["queue_overruns"] == 1
+    assert summary["dropped_blocks"] == 6
     log = read_log(run_dir)
     fl = log.table["flags"].to_numpy()
     gap_rows = np.flatnonzero(fl & F.GAP)
