@@ -423,6 +423,7 @@ class CaptureEngine:
         if msg is None or self._ended_by:
             return False
         self._counts["device_errors"] += 1
+        self._flush_tail()  # everything before the error row goes out first, in time order
         t = self._delivered / self.sample_rate_hz  # raw; _post corrects it
         self._record_fault("device_error", self._time_of(self._delivered), 0, msg)
         # a row at the end of the audio marks where the input stopped
@@ -462,6 +463,14 @@ class CaptureEngine:
             s = self._snap
             s.peak_dbfs = 20 * math.log10(self._peak_hold) if self._peak_hold > 0 else -math.inf
             s.clipping = start + n <= self._clip_until
+
+    def _flush_tail(self) -> None:
+        """Samples dropped after the last queued block become a gap; the last batch is tracked."""
+        lost = self._lost_pending
+        if lost:
+            self._lost_pending = 0
+            self._gap(self._delivered - lost, lost, "queue_overrun", "samples dropped at the end of the run")
+        self._push_batch()
 
     def _push_batch(self) -> None:
         if not self._batch:
@@ -627,10 +636,8 @@ class CaptureEngine:
         if self._summary is not None:
             return
         fs = self.sample_rate_hz
-        if self._lost_pending and not self._ended_by == "duration":
-            lost = self._lost_pending
-            self._lost_pending = 0
-            self._gap(self._delivered - lost, lost, "queue_overrun", "samples dropped at the end of the run")
+        if self._ended_by != "duration":
+            self._flush_tail()
         if not self._ended_by:
             self._ended_by = "stopped"
         self._push_batch()

@@ -144,7 +144,7 @@ def test_queue_overrun_becomes_a_gap_row_at_the_right_time(scripted_source, tmp_
 
 
 def test_device_error_ends_the_run_and_keeps_the_data(scripted_source, tmp_path):
-    blocks = tone_blocks(1000.0, 1.2)
+    blocks = tone_blocks(1000.0, 1.23)  # not a whole number of the engine's 50 ms tracker batches
     src = scripted_source(FS, [("block", b, False) for b in blocks] + [("error", "USB device unplugged")])
     eng, run_dir = run_engine(src, tmp_path, baseline_s=0.3)
     assert eng.wait(10), "a device error must end the run by itself"
