@@ -114,6 +114,7 @@ def _csv_text(res) -> str:
 
 def run(args: argparse.Namespace) -> int:
     import json
+    import math
     import sys
 
     from coilshift.analysis.logread import read_log
@@ -124,11 +125,13 @@ def run(args: argparse.Namespace) -> int:
 
     if not 0 < args.confidence < 1:
         raise InputError(f"--confidence: must lie between 0 and 1, got {args.confidence}")
-    if args.settle is not None and not args.settle > 0:
-        raise InputError(f"--settle: must be positive, got {args.settle}")
-    if args.window is not None and not args.window > 0:
-        raise InputError(f"--window: must be positive, got {args.window}")
-    log = read_log(args.log)
+    if args.settle is not None and not (args.settle > 0 and math.isfinite(args.settle)):
+        raise InputError(f"--settle: must be a positive number, got {args.settle}")
+    if args.window is not None and not (args.window > 0 and math.isfinite(args.window)):
+        raise InputError(f"--window: must be a positive number of seconds, got {args.window}")
+    if args.nominal_hz is not None and not (args.nominal_hz > 0 and math.isfinite(args.nominal_hz)):
+        raise InputError(f"--nominal-hz: must be a positive frequency, got {args.nominal_hz}")
+    log = read_log(args.log, columns=("flags",))  # only time, frequency and flags are used
     temperature = read_temperature_csv(args.temperature) if args.temperature else None
     tracker = log.meta.get("tracker") if isinstance(log.meta.get("tracker"), dict) else {}
     frame_ms = tracker.get("frame_ms")
