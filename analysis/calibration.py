@@ -182,7 +182,7 @@ def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None 
             raise InputError(f"reference target {tname}: kind must be ferrous or non-ferrous, got {kind!r}")
     if target_models and coil is None:
         raise InputError("target models need a coil (--coil FILE) to predict a curve")
-    log = read_log(path)
+    log = read_log(path, columns=("flags",))  # the analysis needs time, frequency and flags only
     src = str(path)
     if settle_s is None:
         settle_s = 0.0 if isinstance(log.meta.get("calibration"), dict) else DEFAULT_SETTLE_S
