@@ -1,0 +1,61 @@
+"""Helpers shared by the reliability tests (not a test module).
+
+Recordings are written with the stdlib ``wave`` module and raw bytes, independent of the
+project's own readers; logs with the project's RunWriter (the format under test elsewhere).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import subprocess
+import sys
+import wave
+from pathlib import Path
+
+import numpy as np
+
+FS = 8000  # small recordings keep the sweep fast; 1 kHz sits well inside 8 kHz Nyquist
+
+
+def cli(*args, cwd=None, timeout=120, env=None):
+    """Run the real command line in a fresh interpreter, as a user would."""
+    env = {**{k: v for k, v in os.environ.items() if k != "COILSHIFT_DEBUG"}, **(env or {})}
+    return subprocess.run([sys.executable, "-m", "coilshift.cli.main", *map(str, args)],
+                          capture_output=True, text=True, cwd=cwd, env=env, timeout=timeout)
+
+
+def wav16(path, x, fs=FS, channels=1) -> Path:
+    """16-bit PCM WAV via the stdlib ``wave`` module; ``x`` in [-1, 1], shape (n,) or (n, ch)."""
+    ints = np.clip(np.round(np.asarray(x) * 32767), -32768, 32767).astype("<i2")
+    with wave.open(str(path), "wb") as w:
+        w.setnchannels(channels)
+        w.setsampwidth(2)
+        w.setframerate(fs)
+        w.writeframes(ints.tobytes())
+    return Path(path)
+
+
+def tone(seconds=1.0, freq_hz=1000.0, amp=0.3, fs=FS, noise=1e-3, seed=0) -> np.ndarray:
+    n = int(round(seconds * fs))
+    rng = np.random.default_rng(seed)
+    return amp * np.sin(2 * np.pi * freq_hz * np.arange(n) / fs) + noise * rng.standard_normal(n)
+
+
+def snapshot(folder) -> dict[str, str]:
+    """SHA-256 of every file under ``folder`` (relative path -> digest)."""
+    folder = Path(folder)
+    out = {}
+    for p in sorted(folder.rglob("*")):
+        if p.is_file():
+            out[str(p.relative_to(folder))] = hashlib.sha256(p.read_bytes()).hexdigest()
+    return out
+
+
+def one_line_error(res) -> str:
+    """Assert the failure contract (non-zero exit, one non-empty stderr line, no traceback)."""
+    lines = res.stderr.splitlines()
+    assert res.returncode != 0, f"exit 0; stdout={res.stdout!r} stderr={res.stderr!r}"
+    assert "Traceback" not in res.stderr, res.stderr
+    assert len(lines) == 1 and lines[0].strip(), f"expected one stderr line, got {lines!r}"
+    return lines[0]
