@@ -34,7 +34,11 @@ class Marker:
 
 def parse_markers(text: str, name: str = "markers") -> list[Marker]:
     """Parse and validate markers CSV text; raise :class:`InputError` naming ``name`` and the row."""
-    rows = list(csv.reader(io.StringIO(text)))
+    try:
+        # newline=None: any line ending (\n, \r\n, a lone \r) ends a row, as when reading a file
+        rows = list(csv.reader(io.StringIO(text, newline=None)))
+    except csv.Error as exc:
+        raise InputError(f"{name}: not a readable CSV ({exc})") from None
     rows = [r for r in rows if r and any(c.strip() for c in r) and not r[0].lstrip().startswith("#")]
     if not rows:
         raise InputError(f"{name}: no markers (empty file)")

@@ -561,7 +561,9 @@ def detect_csv_layout(lines: list[str], name: str) -> CsvLayout:
     else:
         sample = [s for s in split[start:] if s is not None]
         for j in data_cols:
-            vals = np.array([float(s[j].replace(",", ".") if dec == "," else s[j]) for s in sample])
+            # a stray bad cell is skipped here; the full scan then names its line
+            vals = np.array([float(s[j].replace(",", ".") if dec == "," else s[j]) for s in sample
+                             if j < len(s) and _is_number(s[j], dec)])
             if len(vals) >= 2 and np.all(np.diff(vals) > 0):
                 time_col = j
                 break
