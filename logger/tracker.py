@@ -438,10 +438,13 @@ class _Plan:
         hvalid = (hbin <= self.nbins - 3) & (hbin >= 2)
         hbin = _clamp(hbin, 2, self.nbins - 3)
         # a harmonic must be a line: a peak within +-1 bin above the threshold and above the bins
-        # two either side (the skirt of the fundamental falls steadily and fails this)
-        around = power[rows[:, None, None], hbin[:, 1:, None] + self.step5[None, None, :]]  # (F, H-1, 5)
+        # two either side (the skirt of the fundamental falls steadily and fails this); the bin
+        # nearest h*fc lies in the line's main lobe, so it alone decides whether to look closer
+        hvalid[:, 1:] &= power[rows[:, None], hbin[:, 1:]] > detect[:, None]
+        n_look = int(np.max(np.nonzero(hvalid[:, 1:].any(axis=0))[0], initial=-1)) + 1
+        around = power[rows[:, None, None], hbin[:, 1:n_look + 1, None] + self.step5[None, None, :]]  # (F, n_look, 5)
         top = around[:, :, 1:4].max(axis=2)
-        hvalid[:, 1:] &= (top > detect[:, None]) & (top > around[:, :, 0]) & (top > around[:, :, 4])
+        hvalid[:, 1:n_look + 1] &= (top > detect[:, None]) & (top > around[:, :, 0]) & (top > around[:, :, 4])
         # columns beyond the last significant harmonic are all zero; dropping them for the whole
         # chunk changes no frame's result because the leakage sums run column by column
         n_h = int(np.max(np.nonzero(hvalid.any(axis=0))[0], initial=0)) + 1
