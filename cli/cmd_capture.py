@@ -100,7 +100,9 @@ def tracking_from_args(args, sample_rate_hz: float):
     corr = Corrections(clock_ppm=args.clock_ppm, divide=args.divide, nyquist_zone=args.nyquist_zone)
     band = near = None
     if args.band is not None:
-        lo, hi = sorted(args.band)
+        lo, hi = args.band
+        if not (math.isfinite(lo) and math.isfinite(hi) and 0 <= lo < hi):
+            raise InputError(f"--band {lo:g} {hi:g}: give LO_HZ then HI_HZ, with 0 <= LO_HZ < HI_HZ")
         raw = sorted(float(v) for v in corr.freq_to_raw([lo, hi], sample_rate_hz))
         if not all(math.isfinite(v) for v in raw) or raw[0] == raw[1]:
             raise InputError(f"--band {lo:g} {hi:g}: not inside Nyquist zone {args.nyquist_zone} at "
