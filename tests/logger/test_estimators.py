@@ -42,8 +42,9 @@ def test_candan2011_is_jacobsen_times_factor():
     n, k = 16, 4
     xl, xp, xr = three_bins(complex_tone(n, k, 0.3), k)
     assert est.candan2011(xl, xp, xr, n) == pytest.approx(est.candan_factor(n) * est.jacobsen(xl, xp, xr), rel=1e-14)
-    # ... and it removes most of Jacobsen's finite-N bias (Candan 2011, Fig. 1 shows the same)
-    assert abs(est.candan2011(xl, xp, xr, n) - 0.3) < 0.1 * abs(est.jacobsen(xl, xp, xr) - 0.3)
+    # with jacobsen = tan(pi delta/N)/tan(pi/N) (exactness of Candan 2013) the 2011 estimate is
+    # (N/pi) tan(pi delta/N) [derived]: its bias is delta^2/(1 - delta^2) times Jacobsen's
+    assert est.candan2011(xl, xp, xr, n) == pytest.approx(n / math.pi * math.tan(math.pi * 0.3 / n), abs=1e-12)
 
 
 @pytest.mark.parametrize("delta", [-0.5, -0.2, 0.0, 0.3, 0.5])
