@@ -225,7 +225,7 @@ def design_from_dict(obj, where: str = "coil") -> CoilDesign:
     unknown = sorted(set(obj) - set(JSON_KEYS))
     if unknown:
         raise InputError(f"{where}: unknown key(s) {', '.join(unknown)} (known: {', '.join(JSON_KEYS)})")
-    missing = [k for k in ("turns", "inner_diameter_mm", "length_mm") if k not in obj]
+    missing = [k for k in ("turns", "inner_diameter_mm", "length_mm") if obj.get(k) is None]
     if missing:
         raise InputError(f"{where}: missing key(s) {', '.join(missing)}")
     kwargs = {k: v for k, v in obj.items() if v is not None}
