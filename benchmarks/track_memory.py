@@ -24,8 +24,24 @@ import time
 
 GOAL_MB = 300.0
 
-CHILD = r"""
-import json, resource, sys, time
+PEAK = r"""
+import resource
+
+def peak_mb():
+    # VmHWM is this process's own peak; ru_maxrss in a fork+exec child can carry the parent's
+    # pre-exec peak on Linux
+    try:
+        with open("/proc/self/status") as fh:
+            for line in fh:
+                if line.startswith("VmHWM:"):
+                    return int(line.split()[1]) / 1024.0
+    except OSError:
+        pass
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+"""
+
+CHILD = PEAK + r"""
+import json, sys, time
 from coilshift.logger.corrections import Corrections
 from coilshift.logger.pipeline import track_source
 from coilshift.logger.sources import open_source
@@ -37,14 +53,14 @@ s = track_source(src, TrackerSettings(), Corrections(), sys.argv[2])
 t2 = time.perf_counter()
 print(json.dumps({"open_s": t1 - t0, "track_s": t2 - t1, "frames": s["frames"],
                   "duration_s": s["duration_s"], "baseline_hz": s["baseline_hz"],
-                  "peak_rss_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0}))
+                  "peak_rss_mb": peak_mb()}))
 """
 
-IMPORTS_ONLY = r"""
-import json, resource
+IMPORTS_ONLY = PEAK + r"""
+import json
 import numpy, pandas, soundfile
 import coilshift.logger.pipeline, coilshift.logger.tracker, coilshift.logger.sources
-print(json.dumps({"peak_rss_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0}))
+print(json.dumps({"peak_rss_mb": peak_mb()}))
 """
 
 
