@@ -199,6 +199,7 @@ class CaptureEngine:
         self._counts = {"overflows": 0, "gaps": 0, "lost_samples": 0, "device_errors": 0, "queue_overruns": 0}
         self._ended_by = ""
         self._status = "complete"
+        self._write_failed = False
         self._message = ""
         self._worker: threading.Thread | None = None
         self._worker_error: BaseException | None = None
@@ -367,6 +368,14 @@ class CaptureEngine:
     def _work(self) -> None:
         try:
             self._work_loop()
+        except OSError as exc:  # disk full, read-only or vanished folder: stop, keep what is written
+            self._status, self._ended_by = "interrupted", "write_error"
+            self._message = f"cannot write {exc.filename or self.run_dir}: {exc.strerror or exc}"
+            self._write_failed = True  # no more rows: the log may end in part of one
+            try:
+                self._finish_run()  # run.json says interrupted when the disk still takes it
+            except BaseException:
+                self._worker_error = exc  # the CLI reports the write error in one line
         except BaseException as exc:  # never leave the run without its final run.json
             self._worker_error = exc
             self._status, self._ended_by, self._message = "failed", "internal_error", f"{type(exc).__name__}: {exc}"
@@ -602,6 +611,8 @@ class CaptureEngine:
             self._snap.baseline_hz = found.freq_hz
 
     def _flush_pending(self) -> None:
+        if self._write_failed:
+            self._pending_out = []
         if not self._pending_out:
             return
         frames = FrameTable.concat(self._pending_out)

@@ -39,6 +39,8 @@ LOG_NAME = "log.csv"
 META_NAME = "run.json"
 MARKERS_NAME = "markers.csv"
 LOG_COLUMNS = ("t_s", "utc", "freq_hz", "shift_hz", "amp_dbfs", "snr_db", "flags")
+#: bytes set aside while a run is written, so the final run.json fits on a disk that fills up
+RESERVE_BYTES = 64 * 1024
 #: files a run folder may hold that --force is allowed to replace
 RUN_FILES = (LOG_NAME, META_NAME, MARKERS_NAME)
 
@@ -116,8 +118,16 @@ class RunWriter:
         self.baseline_hz = float(self.meta.get("baseline", {}).get("freq_hz", np.nan))
         self.fsync_interval_s = fsync_interval_s
         self.rows_written = 0
+        self._write_error: OSError | None = None
         self._flag_counts: dict[str, int] = {}
         write_json_atomic(self.run_dir / META_NAME, self.meta)
+        # room kept for the final run.json: if the disk fills up during the run, deleting this
+        # lets run.json still say how the run ended (the name matches the temp-file clean-ups)
+        self._reserve = self.run_dir / f".{META_NAME}.reserve.tmp"
+        try:
+            self._reserve.write_bytes(b"\0" * RESERVE_BYTES)
+        except OSError:
+            self._reserve.unlink(missing_ok=True)
         self._fh = open(self.run_dir / LOG_NAME, "x", encoding="utf-8", newline="\n")
         self._fh.write(",".join(LOG_COLUMNS) + "\n")
         self._fh.flush()
@@ -144,24 +154,57 @@ class RunWriter:
             stamp = utc_iso(base + _dt.timedelta(seconds=float(t)))
             lines.append(f"{t:.6f},{stamp},{_fmt(f, 6)},{_fmt(f - self.baseline_hz, 6)},"
                          f"{_fmt(a, 2)},{_fmt(s, 2)},{words}\n")
-        self._fh.write("".join(lines))
-        self._fh.flush()
-        self.rows_written += len(lines)
-        now = time.monotonic()
-        if now - self._last_sync >= self.fsync_interval_s:
-            os.fsync(self._fh.fileno())
-            self._last_sync = now
+        if self._write_error is not None:
+            # after a failed write the file may end in part of a row: never append behind it
+            raise self._write_error
+        try:
+            self._fh.write("".join(lines))
+            self._fh.flush()
+            self.rows_written += len(lines)
+            now = time.monotonic()
+            if now - self._last_sync >= self.fsync_interval_s:
+                os.fsync(self._fh.fileno())
+                self._last_sync = now
+        except OSError as exc:  # disk full, folder gone, ...: say which file
+            self._write_error = self._named(exc)
+            raise self._write_error from None
+
+    def _named(self, exc: OSError) -> OSError:
+        if exc.filename:
+            return exc
+        return OSError(exc.errno, exc.strerror or str(exc), str(self.run_dir / LOG_NAME))
 
     def close(self, totals: dict | None = None, status: str = "complete") -> None:
         """fsync the log and replace run.json with the final status and totals."""
         if self._fh.closed:
             return
-        self._fh.flush()
-        os.fsync(self._fh.fileno())
-        self._fh.close()
+        prior = self._write_error  # already raised by append
+        error = None
+        try:
+            self._fh.flush()
+            os.fsync(self._fh.fileno())
+        except OSError as exc:
+            error = error or self._named(exc)
+        finally:
+            try:
+                self._fh.close()  # closes the file even when the final flush fails
+            except OSError as exc:
+                error = error or self._named(exc)
+        failed = error or prior
+        if failed is not None and status == "complete":
+            status = "interrupted"  # rows are missing at the end: the run is not complete
         self.meta["status"] = status
         self.meta["totals"] = {"rows": self.rows_written, "flag_counts": self._flag_counts, **(totals or {})}
+        if failed is not None:
+            self.meta["totals"]["write_error"] = f"{failed.filename}: {failed.strerror}"
+        try:
+            self._reserve.unlink(missing_ok=True)  # frees the room kept for this write
+        except OSError:
+            pass
+        # should even this fail, run.json still says "running", which readers take as interrupted
         write_json_atomic(self.run_dir / META_NAME, self.meta)
+        if error is not None:
+            raise error
 
     def __enter__(self) -> "RunWriter":
         return self
