@@ -140,3 +140,15 @@ def test_disk_errors_surface_as_oserror_with_rows_kept(tmp_path, monkeypatch):
     w.close(status="interrupted")
     log = read_log(run)
     assert len(log.table) >= 4
+
+
+def test_atomic_files_get_the_usual_permissions(tmp_path):
+    """Finished files get the mode open() would give them (0666 less the umask), not mkstemp's 0600."""
+    from coilshift.logger.atomic import write_text_atomic
+
+    mask = os.umask(0o022)
+    try:
+        write_text_atomic(tmp_path / "a.txt", "x")
+    finally:
+        os.umask(mask)
+    assert (tmp_path / "a.txt").stat().st_mode & 0o777 == 0o644
