@@ -60,10 +60,18 @@ def to_jsonable(obj):
     return obj
 
 
-def _umask() -> int:
+def _read_umask() -> int:
     mask = os.umask(0)
     os.umask(mask)
     return mask
+
+
+# read once at import: os.umask can only be read by setting it, which is not thread-safe later
+_UMASK = _read_umask()
+
+
+def _umask() -> int:
+    return _UMASK
 
 
 def _fsync_dir(folder: Path) -> None:
