@@ -213,6 +213,11 @@ def write_recording(p: Plan, path: str | os.PathLike, block_frames: int = BLOCK_
                           subtype=subtype, format=rec.encoding.upper()) as fh:
             for b in blocks(p, block_frames):
                 fh.write((b << shift).astype(np.int16 if rec.bits == 16 else np.int32))
+        fd = os.open(tmp, os.O_RDONLY)  # on disk before the rename makes it the recording
+        try:
+            os.fsync(fd)
+        finally:
+            os.close(fd)
         os.replace(tmp, path)
     except BaseException:
         if tmp.exists():
