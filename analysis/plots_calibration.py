@@ -58,7 +58,7 @@ def _span(res: CalibrationResult) -> tuple[float, float]:
 
 
 def _draw_target(ax, t: TargetResult, color: str, d_grid: np.ndarray, label_prefix: str = "",
-                 coil=None, threshold_hz: float = math.nan, show_power: bool = True, index: int = 0) -> None:
+                 coil=None, threshold_hz: float = math.nan, show_power: bool = True) -> None:
     d = np.array([p.distance_mm for p in t.points])
     y = np.array([p.shift_hz for p in t.points])
     e = np.array([p.stderr_hz for p in t.points])
@@ -73,10 +73,14 @@ def _draw_target(ax, t: TargetResult, color: str, d_grid: np.ndarray, label_pref
                         mfc=fill, mec=color, ecolor=color, capsize=3, lw=1, ls="none")
     # a curve through points that are all noise says nothing: draw the points only
     seen = t.classification.n_significant > 0
+    r = t.range
+    has_range = r.range_mm is not None and math.isfinite(threshold_hz)
     if t.fit is not None and seen:
         p = t.fit.params
+        # the range goes in the legend, not beside its marker, where close ranges would overlap
+        reach = f"; range {r.range_mm:.0f} mm" if has_range else ""
         ax.plot(d_grid, np.abs(t.fit.predict(d_grid)), "-", color=color, lw=1.6,
-                label=f"{name}: dipole fit A={p['a_hz']:+.3g} Hz, R={p['radius_mm']:.3g} mm")
+                label=f"{name}: dipole fit A={p['a_hz']:+.3g} Hz, R={p['radius_mm']:.3g} mm{reach}")
     else:
         ax.plot([], [], "v", color=color, label=f"{name} ({'no fit' if t.fit is None else 'no significant shift'})")
     if t.power_fit is not None and seen and show_power:
@@ -85,15 +89,12 @@ def _draw_target(ax, t: TargetResult, color: str, d_grid: np.ndarray, label_pref
     if t.prediction is not None and coil is not None:
         pred = np.abs(t.prediction.curve(coil, d_grid))
         ax.plot(d_grid, pred, ":", color=color, lw=1.6, label=f"{name}: predicted ({t.prediction.spec.name})")
-    r = t.range
-    if r.range_mm is not None and math.isfinite(threshold_hz):
+    if has_range:
         xerr = None
         if r.ci_mm is not None:
             xerr = [[max(r.range_mm - r.ci_mm[0], 0)], [max(r.ci_mm[1] - r.range_mm, 0)]]
         ax.errorbar([r.range_mm], [threshold_hz], xerr=xerr, fmt="D", ms=8, color=color, mec="black",
                     capsize=4, lw=1.5, zorder=5)
-        ax.annotate(f"{r.range_mm:.0f} mm", (r.range_mm, threshold_hz), textcoords="offset points",
-                    xytext=(4, 8 + 12 * (index % 3)), color=color, fontsize=9)
 
 
 def _sign_legend(ax) -> None:
@@ -108,7 +109,7 @@ def plot_curves(res: CalibrationResult, path: str | os.PathLike | None = None) -
     lo, hi = _span(res)
     d_grid = np.geomspace(lo, hi, 300)
     for i, t in enumerate(res.targets):
-        _draw_target(ax, t, _color(i), d_grid, coil=res.coil, threshold_hz=res.threshold_hz, index=i)
+        _draw_target(ax, t, _color(i), d_grid, coil=res.coil, threshold_hz=res.threshold_hz)
     if math.isfinite(res.threshold_hz):
         ax.axhline(res.threshold_hz, color="black", ls="-.", lw=1,
                    label=f"threshold {res.threshold_hz:.3g} Hz ({res.threshold_source})")
@@ -216,9 +217,9 @@ def plot_compare(results: list[CalibrationResult], names: list[str],
         for t in r.targets:
             if t.target not in targets:
                 targets.append(t.target)
-    ncol = min(2, len(targets))
+    ncol = 1  # one target a row, legend to its right
     nrow = math.ceil(len(targets) / ncol)
-    fig, axes = plt.subplots(nrow, ncol, figsize=(7 * ncol, 4.8 * nrow), squeeze=False)
+    fig, axes = plt.subplots(nrow, ncol, figsize=(12, 4.2 * nrow + 0.6), squeeze=False)
     for k, tname in enumerate(targets):
         ax = axes[k // ncol][k % ncol]
         lo, hi = 1e9, 0.0
@@ -232,7 +233,7 @@ def plot_compare(results: list[CalibrationResult], names: list[str],
             if t is None:
                 continue
             _draw_target(ax, t, _color(i), d_grid, label_prefix=f"{name}: ", coil=r.coil,
-                         threshold_hz=r.threshold_hz, show_power=False, index=i)
+                         threshold_hz=r.threshold_hz, show_power=False)
             if math.isfinite(r.threshold_hz):
                 ax.axhline(r.threshold_hz, color=_color(i), ls="-.", lw=0.8,
                            label=f"{name}: threshold {r.threshold_hz:.3g} Hz")
@@ -247,9 +248,10 @@ def plot_compare(results: list[CalibrationResult], names: list[str],
         ax.set_xlabel("distance from coil (mm)")
         ax.set_ylabel("|frequency shift| (Hz)")
         ax.grid(True, which="both", alpha=0.3)
-        ax.legend(fontsize=7, loc="lower left")
+        # beside the panel: inside, any corner hides a curve or a threshold line
+        ax.legend(fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0)
     for k in range(len(targets), nrow * ncol):
         axes[k // ncol][k % ncol].set_visible(False)
     fig.suptitle("Runs compared (filled triangle down: frequency falls; open up: rises; diamond: range)")
-    fig.tight_layout()
+    fig.tight_layout(rect=(0, 0, 1, 1 - 0.5 / fig.get_figheight()))
     return _finish(fig, path)
