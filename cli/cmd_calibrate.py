@@ -83,6 +83,10 @@ def run(args) -> int:
     kwargs = analysis_kwargs(args)
     if args.report_dir and Path(args.report_dir).resolve() == Path(args.out).resolve():
         raise InputError(f"{args.report_dir}: the report folder must differ from the run folder")
+    for folder in filter(None, (args.out, args.report_dir)):  # refused now, not after the session
+        p = Path(folder)
+        if p.exists() and (not p.is_dir() or (any(p.iterdir()) and not args.force)):
+            prepare_run_dir(p, False)  # raises the usual one-line refusal and changes nothing
     talk = sys.stderr if args.json else sys.stdout
     if args.synthetic:
         source = _synthetic_source(args.synthetic, args.rate, None)
