@@ -7,6 +7,7 @@ project's own readers; logs with the project's RunWriter (the format under test 
 from __future__ import annotations
 
 import hashlib
+import math
 import os
 import subprocess
 import sys
@@ -15,7 +16,12 @@ from pathlib import Path
 
 import numpy as np
 
-FS = 8000  # small recordings keep the sweep fast; 1 kHz sits well inside 8 kHz Nyquist
+from coilshift.logger.frames import FrameTable
+from coilshift.logger.markers import BASELINE, Marker, markers_to_csv
+from coilshift.logger.runlog import RunWriter, prepare_run_dir, write_markers_copy
+
+FS = 8000
+START = "2026-03-01T12:00:00.000Z"  # small recordings keep the sweep fast; 1 kHz sits well inside 8 kHz Nyquist
 
 
 def cli(*args, cwd=None, timeout=120, env=None):
@@ -59,3 +65,22 @@ def one_line_error(res) -> str:
     assert "Traceback" not in res.stderr, res.stderr
     assert len(lines) == 1 and lines[0].strip(), f"expected one stderr line, got {lines!r}"
     return lines[0]
+
+
+def write_small_run(run_dir, n=3000, hop=0.02, f0=20000.0, with_markers=True) -> Path:
+    """A small valid run folder written by RunWriter: baseline / coin at 10 mm (+3 Hz) / baseline."""
+    t = (np.arange(n) + 0.5) * hop
+    rng = np.random.default_rng(1)
+    f = f0 + 0.01 * rng.standard_normal(n)
+    third = n * hop / 3
+    f[(t >= third) & (t < 2 * third)] += 3.0
+    frames = FrameTable(t, f, np.full(n, -20.0), np.full(n, 40.0), np.zeros(n, np.int64))
+    run = prepare_run_dir(run_dir)
+    with RunWriter(run, {"start_utc": START, "baseline": {"freq_hz": f0, "method": "test"},
+                         "tracker": {"frame_ms": 85.0}}) as w:
+        w.append(frames)
+    if with_markers:
+        write_markers_copy(run, markers_to_csv([Marker(0.0, third, BASELINE, math.nan),
+                                                Marker(third, 2 * third, "coin", 10.0),
+                                                Marker(2 * third, 3 * third, BASELINE, math.nan)]))
+    return run

@@ -13,7 +13,6 @@ about as many seconds as CPU cores allow rather than one interpreter start after
 from __future__ import annotations
 
 import json
-import math
 import shutil
 import struct
 from concurrent.futures import ThreadPoolExecutor
@@ -23,13 +22,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 import soundfile as sf
-from reliability_helpers import FS, cli, one_line_error, snapshot, tone, wav16
-
-from coilshift.logger.frames import FrameTable
-from coilshift.logger.markers import BASELINE, Marker, markers_to_csv
-from coilshift.logger.runlog import RunWriter, prepare_run_dir, write_markers_copy
-
-START = "2026-03-01T12:00:00.000Z"
+from reliability_helpers import FS, cli, one_line_error, snapshot, tone, wav16, write_small_run
 
 # ~180 interpreter starts: tens of seconds on two cores, so the module is marked slow (still run)
 pytestmark = pytest.mark.slow
@@ -47,25 +40,6 @@ def _scope_rows(n=4000, f=1000.0, fs=FS):
     t = np.arange(n) / fs
     v = 0.5 * np.sin(2 * np.pi * f * t)
     return [f"{a:.7f},{b:.5f}" for a, b in zip(t, v)]
-
-
-def _write_run(run_dir: Path, n=3000, hop=0.02, f0=20000.0, with_markers=True):
-    """A small, valid run folder: baseline / coin at 10 mm / baseline, written by RunWriter."""
-    t = (np.arange(n) + 0.5) * hop
-    rng = np.random.default_rng(1)
-    f = f0 + 0.01 * rng.standard_normal(n)
-    third = n * hop / 3
-    f[(t >= third) & (t < 2 * third)] += 3.0
-    frames = FrameTable(t, f, np.full(n, -20.0), np.full(n, 40.0), np.zeros(n, np.int64))
-    run = prepare_run_dir(run_dir)
-    with RunWriter(run, {"start_utc": START, "baseline": {"freq_hz": f0, "method": "test"},
-                         "tracker": {"frame_ms": 85.0}}) as w:
-        w.append(frames)
-    if with_markers:
-        write_markers_copy(run, markers_to_csv([Marker(0.0, third, BASELINE, math.nan),
-                                                Marker(third, 2 * third, "coin", 10.0),
-                                                Marker(2 * third, 3 * third, BASELINE, math.nan)]))
-    return run
 
 
 def make_inputs(d: Path) -> None:
@@ -132,9 +106,9 @@ def make_inputs(d: Path) -> None:
         f"{i * 0.02:.2f},{'inf' if i == 70 else '1000.0'}\n" for i in range(500)))
     (d / "log_empty.csv").write_bytes(b"")
     (d / "log_random.csv").write_bytes(np.random.default_rng(5).integers(0, 256, 3000, dtype=np.uint8).tobytes())
-    _write_run(d / "run")
-    _write_run(d / "run_nomarkers", with_markers=False)
-    bad_meta = _write_run(d / "run_badmeta")
+    write_small_run(d / "run")
+    write_small_run(d / "run_nomarkers", with_markers=False)
+    bad_meta = write_small_run(d / "run_badmeta")
     (bad_meta / "run.json").write_text("{not json")
     (d / "notarun").mkdir()
     (d / "temp_bad.csv").write_text("when,degrees\n1,20\n2,21\n")

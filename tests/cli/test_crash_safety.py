@@ -27,15 +27,11 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from reliability_helpers import cli, one_line_error, snapshot, tone, wav16
+from reliability_helpers import cli, one_line_error, snapshot, tone, wav16, write_small_run
 
 from coilshift.analysis.logread import read_log
 from coilshift.cli.main import main
 from coilshift.logger import runlog
-from coilshift.logger.frames import FrameTable
-from coilshift.logger.runlog import RunWriter, prepare_run_dir
-
-START = "2026-03-01T12:00:00.000Z"
 
 
 def _quiet_config(monkeypatch, tmp_path):
@@ -48,12 +44,7 @@ def _quiet_config(monkeypatch, tmp_path):
 
 
 def _small_run(path: Path, n=4000) -> Path:
-    t = (np.arange(n) + 0.5) * 0.02
-    f = 20000.0 + 0.01 * np.random.default_rng(3).standard_normal(n)
-    run = prepare_run_dir(path)
-    with RunWriter(run, {"start_utc": START, "baseline": {"freq_hz": 20000.0, "method": "test"}}) as w:
-        w.append(FrameTable(t, f, np.full(n, -20.0), np.full(n, 40.0), np.zeros(n, np.int64)))
-    return run
+    return write_small_run(path, n=n, with_markers=False)
 
 
 # --------------------------------------------------------------------------- SIGKILL mid-write
