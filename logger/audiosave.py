@@ -9,6 +9,9 @@ continues in numbered files (``audio.wav``, ``audio-002.wav``, ...), each a vali
 
 from __future__ import annotations
 
+import errno
+import os
+import shutil
 import time
 from pathlib import Path
 
@@ -42,6 +45,7 @@ class AudioRecorder:
         self.files: list[dict] = []
         self.frames_written = 0
         self._fh = None
+        self._failed = False
         self._in_file = 0
         self._last_flush = time.monotonic()
         self._open_next()
@@ -59,7 +63,30 @@ class AudioRecorder:
         self._in_file = 0
 
     def write(self, block: np.ndarray) -> None:
-        """Append samples (1-D float); zeros stand in for samples the stream lost."""
+        """Append samples (1-D float); zeros stand in for samples the stream lost.
+
+        Raises OSError naming the file when the disk refuses the samples (libsndfile hides the
+        system's reason; little free space left is reported as a full disk).
+        """
+        try:
+            self._write(block)
+        except (RuntimeError, OSError) as exc:  # soundfile's errors derive from RuntimeError
+            self._failed = True
+            raise self._as_oserror(exc) from None
+
+    def _as_oserror(self, exc: BaseException) -> OSError:
+        if isinstance(exc, OSError) and exc.filename:
+            return exc
+        path = str(self.folder / self.files[-1]["file"])
+        try:
+            full = shutil.disk_usage(self.folder).free < (1 << 20)
+        except OSError:
+            full = False
+        if full:
+            return OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), path)
+        return OSError(errno.EIO, f"cannot write audio ({exc})", path)
+
+    def _write(self, block: np.ndarray) -> None:
         block = np.asarray(block, dtype=np.float32)
         while block.size:
             room = self.max_frames - self._in_file
@@ -86,8 +113,12 @@ class AudioRecorder:
 
     def close(self) -> None:
         if self._fh is not None:
-            self._fh.close()
-            self._fh = None
+            fh, self._fh = self._fh, None
+            try:
+                fh.close()
+            except (RuntimeError, OSError) as exc:
+                if not self._failed:  # after a failed write the error has been reported already
+                    raise self._as_oserror(exc) from None
 
     def describe(self) -> dict:
         return {"files": self.files, "format": "WAV float32 mono", "sample_rate_hz": self.sample_rate_hz,
