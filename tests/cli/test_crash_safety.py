@@ -204,17 +204,23 @@ def mount_point(tmp_path):
 
 
 @pytest.mark.slow
-def test_capture_on_a_disk_that_fills_up(tmp_path, monkeypatch, mount_point):
+@pytest.mark.parametrize("save_audio", [False, True], ids=["log", "log+audio"])
+def test_capture_on_a_disk_that_fills_up(tmp_path, monkeypatch, mount_point, save_audio):
+    import soundfile as sf
+
     env = _quiet_config(monkeypatch, tmp_path)
-    disk = mount_point(96)  # 64 KiB held for run.json leaves ~32 KiB for the log
+    disk = mount_point(96 if not save_audio else 256)  # 64 KiB of it held for the final run.json
+    extra = ["--save-audio"] if save_audio else []
     res = cli("capture", "-o", disk / "run", "--synthetic", "1000", "--rate", "8000", "--hop-ms", "2",
-              "--seconds", "60", "--no-view", env=env, timeout=60)
+              "--seconds", "60", "--no-view", *extra, env=env, timeout=60)
     line = one_line_error(res)
-    assert "log.csv" in line and "No space left on device" in line
+    assert ("audio.wav" if save_audio else "log.csv") in line and "No space left on device" in line
     meta = json.loads((disk / "run" / "run.json").read_text())
     assert meta["status"] == "interrupted"
     log = read_log(disk / "run")
     assert log.interrupted and len(log.table) > 100
+    if save_audio:  # the audio up to its last flush reads back
+        assert sf.info(str(disk / "run" / "audio.wav")).frames > 8000
 
 
 def test_commands_refuse_a_read_only_folder_in_one_line(tmp_path, monkeypatch, mount_point):
