@@ -53,7 +53,11 @@ def run_tracker(source, settings, progress: ProgressFn | None = None) -> tuple[F
     from .tracker import FrameTracker
 
     fs = float(source.sample_rate_hz)
-    tracker = FrameTracker(fs, settings)
+    name = source_name(source)
+    try:
+        tracker = FrameTracker(fs, settings)
+    except InputError as exc:  # e.g. a sample rate too low for the frame: the recording's fault
+        raise InputError(f"{name}: {exc}") from None
     if source.n_frames < tracker.frame_len:
         raise InputError(f"{source_name(source)}: the recording is {1e3 * source.duration_s:.1f} ms long, "
                          f"shorter than one analysis frame ({1e3 * tracker.frame_len / fs:.1f} ms)")
@@ -62,7 +66,10 @@ def run_tracker(source, settings, progress: ProgressFn | None = None) -> tuple[F
     done = 0
     total_s = source.duration_s
     for block in source.blocks(block_frames):
-        parts.append(tracker.push(block))
+        try:
+            parts.append(tracker.push(block))
+        except InputError as exc:  # NaN or infinite samples in a float recording
+            raise InputError(f"{name}: {exc} (in the block starting at {done / fs:.3f} s)") from None
         done += len(block)
         if progress is not None:
             progress(done / fs, total_s)
