@@ -57,6 +57,11 @@ def make_inputs(d: Path) -> None:
     (d / "random.flac").write_bytes(b"fLaC" + bytes(range(256)) * 4)
     sf.write(d / "adpcm.wav", tone(0.5), FS, subtype="IMA_ADPCM")  # a valid WAV in an encoding we refuse
     sf.write(d / "flac_named.wav", tone(0.5), FS, format="FLAC")
+    for name, bad in (("nan_sample.wav", np.nan), ("inf_sample.wav", np.inf)):
+        x = tone(1.0)
+        x[5000] = bad
+        sf.write(d / name, x, FS, subtype="FLOAT")  # a float WAV can hold them
+    sf.write(d / "rate100.wav", tone(1.0, freq_hz=20.0, fs=100), 100, subtype="PCM_16")
     (d / "binary.csv").write_bytes(bytes(range(256)) * 8)
     wav16(d / "short.wav", tone(0.02))  # 20 ms: shorter than an 85 ms frame
     wav16(d / "silence.wav", np.zeros(FS))
@@ -154,6 +159,10 @@ CASES = [
     C("track-random-flac", ("track", "{in}/random.flac", "-o", "{out}"), "random.flac"),
     C("track-unsupported-encoding", ("track", "{in}/adpcm.wav", "-o", "{out}"), "adpcm.wav", True),
     C("track-flac-named-wav", ("track", "{in}/flac_named.wav", "-o", "{out}"), "flac_named.wav"),
+    C("track-nan-sample", ("track", "{in}/nan_sample.wav", "-o", "{out}"), "nan_sample.wav", True),
+    C("track-inf-sample", ("track", "{in}/inf_sample.wav", "-o", "{out}"), "inf_sample.wav"),
+    C("track-rate-too-low", ("track", "{in}/rate100.wav", "-o", "{out}"), "rate100.wav"),
+    C("clock-nan-sample", ("clock-error", "{in}/nan_sample.wav", "--reference-hz", "1000"), "nan_sample.wav"),
     C("track-binary-csv", ("track", "{in}/binary.csv", "-o", "{out}"), "binary.csv"),
     C("track-missing-file", ("track", "{in}/nothere.wav", "-o", "{out}"), "nothere.wav"),
     C("track-folder-as-input", ("track", "{in}/notarun", "-o", "{out}"), "notarun"),
