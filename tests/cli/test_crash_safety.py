@@ -237,3 +237,21 @@ def test_commands_refuse_a_read_only_folder_in_one_line(tmp_path, monkeypatch, m
         line = one_line_error(res)
         assert str(disk) in line, line
     assert list(disk.iterdir()) == []
+
+
+@pytest.mark.slow
+def test_track_on_a_full_disk_leaves_nothing_half_written(tmp_path, mount_point):
+    wav = wav16(tmp_path / "long.wav", tone(60.0))  # ~3000 rows, ~200 KB of log
+    disk = mount_point(96)
+    res = cli("track", wav, "-o", disk / "new", "--quiet")
+    line = one_line_error(res)
+    assert "log.csv" in line and "No space left on device" in line
+    assert list(disk.iterdir()) == []  # no half run that looks like a run
+    old = disk / "old"
+    old.mkdir()
+    (old / "log.csv").write_text("t_s,freq_hz\n0.0,1000.0\n")
+    (old / "run.json").write_text('{"status": "complete"}\n')
+    before = snapshot(old)
+    res = cli("track", wav, "-o", old, "--force", "--quiet")
+    one_line_error(res)
+    assert snapshot(old) == before  # the run it was to replace is back
