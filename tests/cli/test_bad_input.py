@@ -99,6 +99,8 @@ def make_inputs(d: Path) -> None:
     (d / "m_columns.csv").write_text("begin,finish,what\n0,0.5,baseline\n")
     (d / "m_negdist.csv").write_text("start_s,end_s,target,distance_mm\n0,0.5,coin,-3\n")
     (d / "m_empty.csv").write_bytes(b"")
+    (d / "m_beyond_log.csv").write_text("start_s,end_s,target,distance_mm\n0,20,baseline,\n20,40,coin,10\n"
+                                        "40,200,baseline,\n")  # the small run is 60 s long
     # -- logs
     (d / "nofreq.csv").write_text("t_s,frequency\n" + "".join(f"{i * 0.02:.2f},{1000 + i % 3}\n" for i in range(500)))
     (d / "log_nan_t.csv").write_text("t_s,freq_hz\n" + "".join(
@@ -249,8 +251,10 @@ CASES = [
       "log_random.csv"),
     C("analyze-markers-overlap", ("analyze", "{in}/run", "--markers", "{in}/m_overlap.csv", "-o", "{out}"),
       "m_overlap.csv", True),
-    C("analyze-markers-outside", ("analyze", "{in}/run", "--markers", "{in}/m_columns.csv", "-o", "{out}"),
+    C("analyze-markers-columns", ("analyze", "{in}/run", "--markers", "{in}/m_columns.csv", "-o", "{out}"),
       "m_columns.csv"),
+    C("analyze-markers-beyond-log", ("analyze", "{in}/run", "--markers", "{in}/m_beyond_log.csv", "-o", "{out}"),
+      "m_beyond_log.csv"),
     C("analyze-markers-two-runs", ("analyze", "{in}/run", "{in}/run", "--markers", "{in}/m_overlap.csv"),
       "m_overlap.csv"),
     C("analyze-coil-impossible", ("analyze", "{in}/run", "--coil", "{in}/coil_negative.json", "-o", "{out}"),
