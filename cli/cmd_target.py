@@ -89,13 +89,16 @@ def threshold_from_args(args) -> float | None:
     if args.noise_hz is not None:
         noise = args.noise_hz
     else:
+        import numpy as np
+
         from coilshift.analysis.logread import read_log
         from coilshift.analysis.stability import noise_at_tau_hz
 
         if not (math.isfinite(args.tau_s) and args.tau_s > 0):
             raise InputError(f"--tau-s {args.tau_s}: must be positive")
-        log = read_log(args.noise_log)
-        noise = noise_at_tau_hz(log.t_s, log.freq_hz, args.tau_s)
+        log = read_log(args.noise_log, columns=("flags",))  # time, frequency and flags are all it needs
+        # frames the tracker flagged unusable (gap, no tone, out of band) are gaps, as in stability
+        noise = noise_at_tau_hz(log.t_s, np.where(log.usable(), log.freq_hz, np.nan), args.tau_s)
     if not (math.isfinite(noise) and noise > 0):
         raise InputError(f"{args.noise_log or '--noise-hz'}: no usable noise figure ({noise})")
     # a reading is a tau-mean minus an adjacent baseline tau-mean: its spread is sqrt(2) ADEV(tau)

@@ -193,7 +193,7 @@ def run_demo(out_dir: str | os.PathLike, force: bool = False,
     write_outputs([results[k] for k in COILS], out / "calibration")
 
     say("analysing the stability run")
-    slog = read_log(out / "runs" / "B-200-stability")
+    slog = read_log(out / "runs" / "B-200-stability", columns=("flags",))
     stab = analyse_stability(slog.t_s, slog.freq_hz, slog.usable(), source="B-200 stability run")
     (out / "stability").mkdir(exist_ok=True)
     plot_sigma_tau(stab, out / "stability" / "sigma_tau.png")
