@@ -29,14 +29,13 @@ given, and a round-wire filament sum when the wire is known. ``method`` names wh
 
 from __future__ import annotations
 
-import json
 import math
 from dataclasses import asdict, dataclass, field, fields
-from pathlib import Path
 
 import numpy as np
 
 from coilshift.logger.errors import InputError
+from coilshift.logger.textfile import read_json
 
 from . import inductance as ind
 from . import wire as wiremod
@@ -204,18 +203,7 @@ def load_coil(path) -> CoilDesign:
     ``temp_c`` (20), ``cap_nf``, ``lead_length_mm`` (0), ``name``. Unknown keys and impossible
     geometry raise InputError naming the file.
     """
-    path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError(f"{path}: no such file") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"{path}: cannot read ({exc})") from None
-    try:
-        obj = json.loads(text)
-    except json.JSONDecodeError as exc:
-        raise InputError(f"{path}: not valid JSON (line {exc.lineno}: {exc.msg})") from None
-    return design_from_dict(obj, str(path))
+    return design_from_dict(read_json(path, "coil file"), str(path))
 
 
 def design_from_dict(obj, where: str = "coil") -> CoilDesign:

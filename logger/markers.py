@@ -12,9 +12,9 @@ import io
 import math
 import os
 from dataclasses import dataclass
-from pathlib import Path
 
 from .errors import InputError
+from .textfile import read_text
 
 COLUMNS = ("start_s", "end_s", "target", "distance_mm")
 BASELINE = "baseline"
@@ -81,16 +81,7 @@ def parse_markers(text: str, name: str = "markers") -> list[Marker]:
 
 def read_markers(path: str | os.PathLike) -> list[Marker]:
     """Read and validate a markers CSV file."""
-    path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise InputError(f"{path}: no such markers file") from None
-    except UnicodeDecodeError:
-        raise InputError(f"{path}: not a text CSV file") from None
-    except OSError as exc:
-        raise InputError(f"{path}: cannot read ({exc.strerror})") from None
-    return parse_markers(text, str(path))
+    return parse_markers(read_text(path, "markers file"), str(path))
 
 
 def markers_to_csv(markers: list[Marker]) -> str:

@@ -43,11 +43,11 @@ import json
 import math
 import os
 from dataclasses import dataclass, field
-from pathlib import Path
 from typing import Any
 
 from coilshift.logger.errors import InputError
 from coilshift.logger.markers import BASELINE
+from coilshift.logger.textfile import read_json
 
 ENCODINGS = ("wav", "flac")
 BITS = (16, 24)
@@ -364,17 +364,4 @@ def parse_script(obj: Any, name: str = "script") -> Script:
 
 def load_script(path: str | os.PathLike) -> Script:
     """Read and check a script file."""
-    path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise InputError(f"{path}: no such script file") from None
-    except UnicodeDecodeError:
-        raise InputError(f"{path}: not a text file") from None
-    except OSError as exc:
-        raise InputError(f"{path}: cannot read ({exc.strerror})") from None
-    try:
-        obj = json.loads(text)
-    except json.JSONDecodeError as exc:
-        raise InputError(f"{path}: not valid JSON (line {exc.lineno}: {exc.msg})") from None
-    return parse_script(obj, str(path))
+    return parse_script(read_json(path, "script file"), str(path))

@@ -250,5 +250,5 @@ def test_load_coil_refuses_bad_files(tmp_path, content, words):
 
 
 def test_load_coil_missing_file(tmp_path):
-    with pytest.raises(InputError, match="no such file"):
+    with pytest.raises(InputError, match="no such coil file"):
         load_coil(tmp_path / "none.json")
