@@ -66,6 +66,7 @@ def test_atomic_writer_killed_mid_write_leaves_a_whole_file(tmp_path):
     path = tmp_path / "out.bin"
     rng = random.Random(7)
     wholes = {bytes([65 + k]) * (1 << 21) for k in range(3)}
+    path.write_bytes(bytes([65]) * (1 << 21))  # an old version exists before the first kill
     for _ in range(6):
         p = subprocess.Popen([sys.executable, "-c", WRITER, str(path)], stdout=subprocess.PIPE, text=True)
         assert p.stdout.readline().strip() == "ready"
