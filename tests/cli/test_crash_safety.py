@@ -80,6 +80,17 @@ def test_atomic_writer_killed_mid_write_leaves_a_whole_file(tmp_path):
                for q in tmp_path.iterdir() if q != path)
 
 
+def _writing_started(folder: Path, stamp: dict) -> bool:
+    """A new (temp) file or a replaced output in ``folder`` since ``stamp`` was taken."""
+    for q in folder.iterdir():
+        try:
+            if q not in stamp or q.stat().st_mtime_ns != stamp[q]:
+                return True
+        except FileNotFoundError:  # a temp file renamed away meanwhile: writing has started
+            return True
+    return False
+
+
 @pytest.mark.slow
 def test_stability_outputs_killed_mid_write_stay_whole(tmp_path):
     run = _small_run(tmp_path / "run")
@@ -91,9 +102,16 @@ def test_stability_outputs_killed_mid_write_stay_whole(tmp_path):
     env = {k: v for k, v in os.environ.items() if k != "COILSHIFT_DEBUG"}
     rng = random.Random(11)
     for _ in range(4):
+        stamp = {q: q.stat().st_mtime_ns for q in out.iterdir()}
         p = subprocess.Popen([sys.executable, "-m", "coilshift.cli.main", "stability", str(run), "-o", str(out),
                               "--force", "--json"], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, env=env)
-        time.sleep(rng.uniform(0.8, 2.5))  # somewhere between start-up and the last file
+        # wait until it starts writing (a temp file or a replaced output), then kill within 60 ms
+        deadline = time.monotonic() + 30
+        while p.poll() is None and time.monotonic() < deadline:
+            if _writing_started(out, stamp):
+                break
+            time.sleep(0.002)
+        time.sleep(rng.uniform(0.0, 0.06))
         p.send_signal(signal.SIGKILL)
         p.wait()
         now = {k: v for k, v in snapshot(out).items() if not k.startswith(".")}
