@@ -28,6 +28,7 @@ import scipy.fft as sfft  # noqa: E402
 from numpy.lib.stride_tricks import sliding_window_view  # noqa: E402
 
 from coilshift.logger import estimators as est  # noqa: E402
+from coilshift.logger.pipeline import REPLAY_BLOCK_S  # noqa: E402
 from coilshift.logger.sinefit import fit_sine4_frames  # noqa: E402
 from coilshift.logger.tracker import FrameTracker, TrackerSettings, track_array  # noqa: E402
 
@@ -169,7 +170,8 @@ def throughput(seconds, repeats, seed=3):
     result = {}
     for name, fn in (
         ("tracker, whole array", lambda: track_array(x, FS)),
-        ("tracker, 1 s blocks (file replay)", lambda: _streamed(x, int(FS))),
+        (f"tracker, {REPLAY_BLOCK_S} s blocks (file replay, as `track` does)",
+         lambda: _streamed(x, REPLAY_BLOCK_S * int(FS))),
         ("tracker, 1024-sample blocks (live capture)", lambda: _streamed(x, 1024)),
         ("baseline argmax+parabola", lambda: baseline_track(x, FS, tr.frame_len, tr.hop_len)),
     ):

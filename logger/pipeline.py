@@ -30,6 +30,9 @@ ProgressFn = Callable[[float, float], None]
 
 _WRITE_BATCH = 20000  # rows per RunWriter.append: bounded line buffer, few syscalls
 
+#: seconds of audio handed to the tracker at a time when replaying a file
+REPLAY_BLOCK_S = 8
+
 
 def source_name(source) -> str:
     """The name to put in front of an error about ``source`` (its path, or its kind)."""
@@ -61,7 +64,8 @@ def run_tracker(source, settings, progress: ProgressFn | None = None) -> tuple[F
     if source.n_frames < tracker.frame_len:
         raise InputError(f"{source_name(source)}: the recording is {1e3 * source.duration_s:.1f} ms long, "
                          f"shorter than one analysis frame ({1e3 * tracker.frame_len / fs:.1f} ms)")
-    block_frames = max(int(tracker.frame_len), int(fs))  # about a second per block
+    # about 8 s per block: each push has a fixed cost, and 8 s of float64 is only ~3 MB at 48 kHz
+    block_frames = max(int(tracker.frame_len), REPLAY_BLOCK_S * int(fs))
     parts: list[FrameTable] = []
     done = 0
     total_s = source.duration_s
