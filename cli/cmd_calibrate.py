@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import sys
+import textwrap
 
 ORDER = 25
 
@@ -95,7 +96,7 @@ def run(args) -> int:
 
         source = SoundcardSource(args.device, args.rate, args.channel)
     settings, corr = tracking_from_args(args, source.sample_rate_hz)
-    print(WIRING_CAUTION + "\n", file=sys.stderr)
+    print(textwrap.fill(WIRING_CAUTION, width=78) + "\n", file=sys.stderr)
     run_dir = prepare_run_dir(args.out, args.force)
     session = {"targets": list(args.target),
                "distances_mm": distances, "unit": args.unit, "dwell_s": args.dwell, "settle_s": args.settle,
