@@ -45,8 +45,8 @@ def test_stderr_covers_68_percent_under_ar1_noise(phi, n):
 
 
 def test_integrated_autocorrelation_time_matches_ar1_theory():
-    # AR(1): tau_int = (1 + phi)/(1 - phi) (Box & Jenkins; Sokal 1997, Monte Carlo methods lecture
-    # notes, eq. 2.20 with 2*tau_int convention). phi = 0.8 -> 9. The estimator's relative spread
+    # AR(1): tau_int = (1 + phi)/(1 - phi) (Box & Jenkins; A. D. Sokal 1997, "Monte Carlo Methods in
+    # Statistical Mechanics: Foundations and New Algorithms", eq. 2.20 with 2*tau_int convention). phi = 0.8 -> 9. The estimator's relative spread
     # is about sqrt(2 (2M+1)/n) with window M ~ 5 tau (Sokal), ~0.2 at n = 4000: allow 3 x 0.2/sqrt(trials).
     rng = np.random.default_rng(7)
     taus = [correlated_mean(_ar1(rng, 4000, 0.8)).tau_int for _ in range(40)]
