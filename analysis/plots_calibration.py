@@ -43,7 +43,7 @@ def _plain_mm_ticks(ax) -> None:
     fmt = FuncFormatter(lambda v, _: f"{v:g}")
     ax.xaxis.set_major_formatter(fmt)
     ax.xaxis.set_minor_formatter(FuncFormatter(lambda v, _: f"{v:g}" if f"{v:g}"[0] in "235" else ""))
-    ax.tick_params(axis="x", which="minor", labelsize=7)
+    ax.tick_params(axis="x", which="both", labelsize=8)  # one size for 20, 50, 100, 200
 
 
 def _color(i: int) -> str:
