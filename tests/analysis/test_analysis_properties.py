@@ -30,6 +30,7 @@ from coilshift.logger.errors import InputError
 from coilshift.logger.frames import FrameTable
 from coilshift.logger.runlog import RunWriter, prepare_run_dir
 from coilshift.sim.script import load_script
+from mutations import mutated
 
 SETTINGS = settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 START = "2026-03-01T12:00:00.000Z"
@@ -56,26 +57,6 @@ def run(work):
     with RunWriter(r, {"start_utc": START, "baseline": {"freq_hz": 20000.0, "method": "test"}}) as w:
         w.append(frames)
     return r
-
-
-@st.composite
-def mutated(draw, base: bytes):
-    data = bytearray(base)
-    for _ in range(draw(st.integers(1, 6))):
-        if not data:
-            break
-        kind = draw(st.sampled_from(["set", "cut", "insert", "truncate"]))
-        i = draw(st.integers(0, len(data) - 1))
-        if kind == "set":
-            data[i] = draw(st.integers(0, 255))
-        elif kind == "cut":
-            del data[i:i + draw(st.integers(1, 64))]
-        elif kind == "insert":
-            data[i:i] = draw(st.binary(min_size=1, max_size=16) | st.sampled_from(
-                [b"nan", b"inf", b"-1", b",", b"\n", b"\r", b'"', b"1e309", b"\x00"]))
-        else:
-            del data[i:]
-    return bytes(data)
 
 
 def _refused_or_ok(fn, path: Path, data: bytes):

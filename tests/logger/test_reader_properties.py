@@ -26,6 +26,7 @@ from coilshift.logger.errors import InputError
 from coilshift.logger.markers import parse_markers, read_markers
 from coilshift.logger.sources import open_source
 from coilshift.logger.tracker import TrackerSettings, track_array
+from mutations import mutated
 
 FS = 8000
 SETTINGS = settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
@@ -51,26 +52,6 @@ def _valid_scope_csv() -> bytes:
 VALID_MARKERS = b"start_s,end_s,target,distance_mm\n0,1,baseline,\n1,2,coin,10\n2,3,baseline,\n"
 WAV = _valid_wav()
 CSV = _valid_scope_csv()
-
-
-@st.composite
-def mutated(draw, base: bytes):
-    """``base`` with a few random edits: byte overwrites, a cut, an insertion, a truncation."""
-    data = bytearray(base)
-    for _ in range(draw(st.integers(1, 6))):
-        kind = draw(st.sampled_from(["set", "cut", "insert", "truncate"]))
-        if not data:
-            break
-        i = draw(st.integers(0, len(data) - 1))
-        if kind == "set":
-            data[i] = draw(st.integers(0, 255))
-        elif kind == "cut":
-            del data[i:i + draw(st.integers(1, 64))]
-        elif kind == "insert":
-            data[i:i] = draw(st.binary(min_size=1, max_size=16))
-        else:
-            del data[i:]
-    return bytes(data)
 
 
 def _consume(path) -> None:
