@@ -69,7 +69,8 @@ def run(args) -> int:
     from pathlib import Path
 
     from coilshift.cli.cmd_analyze import analysis_kwargs, report_results
-    from coilshift.cli.cmd_capture import WIRING_CAUTION, _synthetic_source, tracking_from_args
+    from coilshift.cli.cmd_capture import (WIRING_CAUTION, _synthetic_source, check_tracking_options,
+                                          tracking_from_args)
     from coilshift.logger.capture import CaptureEngine
     from coilshift.logger.errors import InputError
     from coilshift.logger.guide import CalibrationGuide, parse_distances, plan_session
@@ -77,6 +78,7 @@ def run(args) -> int:
     from coilshift.logger.runlog import prepare_run_dir, write_markers_copy
 
     # every check that can fail does so before the device is opened or a folder created
+    check_tracking_options(args)
     distances = parse_distances(args.distances, args.unit)
     plan = plan_session(args.target, distances, args.repeats, args.dwell)
     if not (math.isfinite(args.settle) and args.settle >= 0):

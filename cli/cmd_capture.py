@@ -89,6 +89,31 @@ def add_tracking_options(p) -> None:
                    help="baseline = median of the first S seconds, also the re-zero window (default 2)")
 
 
+def check_tracking_options(args) -> None:
+    """Refuse bad tracking, correction and channel options before any input is opened.
+
+    Shared by every command that takes :func:`add_tracking_options` (track, capture, calibrate);
+    the checks that need the sample rate stay in :func:`tracking_from_args`.
+    """
+    import math
+
+    from coilshift.logger.errors import InputError
+
+    if args.channel < 0:
+        raise InputError(f"--channel {args.channel}: channels are numbered from 0")
+    for opt, value in (("--frame-ms", args.frame_ms), ("--hop-ms", args.hop_ms), ("--baseline-s", args.baseline_s)):
+        if not (math.isfinite(value) and value > 0):
+            raise InputError(f"{opt} {value:g}: must be a positive number")
+    if not math.isfinite(args.min_snr_db):
+        raise InputError(f"--min-snr-db {args.min_snr_db:g}: must be a finite number")
+    if args.band is not None:
+        lo, hi = args.band
+        if not (math.isfinite(lo) and math.isfinite(hi) and 0 <= lo < hi):
+            raise InputError(f"--band {lo:g} {hi:g}: give LO_HZ then HI_HZ, with 0 <= LO_HZ < HI_HZ")
+    if args.near is not None and not (math.isfinite(args.near) and args.near > 0):
+        raise InputError(f"--near {args.near:g}: must be a positive frequency")
+
+
 def tracking_from_args(args, sample_rate_hz: float):
     """TrackerSettings (band/near moved to the recording's raw Hz) and Corrections from the options."""
     import math
@@ -101,8 +126,6 @@ def tracking_from_args(args, sample_rate_hz: float):
     band = near = None
     if args.band is not None:
         lo, hi = args.band
-        if not (math.isfinite(lo) and math.isfinite(hi) and 0 <= lo < hi):
-            raise InputError(f"--band {lo:g} {hi:g}: give LO_HZ then HI_HZ, with 0 <= LO_HZ < HI_HZ")
         raw = sorted(float(v) for v in corr.freq_to_raw([lo, hi], sample_rate_hz))
         if not all(math.isfinite(v) for v in raw) or raw[0] == raw[1]:
             raise InputError(f"--band {lo:g} {hi:g}: not inside Nyquist zone {args.nyquist_zone} at "
@@ -113,8 +136,6 @@ def tracking_from_args(args, sample_rate_hz: float):
         if not math.isfinite(near):
             raise InputError(f"--near {args.near:g}: not inside Nyquist zone {args.nyquist_zone} at "
                              f"{sample_rate_hz:g} Hz with divide {args.divide}")
-    if not args.frame_ms > 0 or not args.hop_ms > 0:
-        raise InputError("--frame-ms and --hop-ms must be > 0")
     try:
         settings = TrackerSettings(frame_ms=args.frame_ms, hop_ms=args.hop_ms, band_hz=band, near_hz=near,
                                    refine=args.refine, min_snr_db=args.min_snr_db)
@@ -196,10 +217,7 @@ def run(args) -> int:
         raise InputError(f"--seconds {args.seconds:g}: must be > 0")
     if args.rate is not None and not args.rate > 0:
         raise InputError(f"--rate {args.rate:g}: must be > 0")
-    if not args.baseline_s > 0:
-        raise InputError(f"--baseline-s {args.baseline_s:g}: must be > 0")
-    if args.channel < 0:
-        raise InputError(f"--channel {args.channel}: channels are numbered from 0")
+    check_tracking_options(args)
     if args.synthetic:
         source = _synthetic_source(args.synthetic, args.rate, args.seconds)
     else:

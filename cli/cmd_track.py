@@ -42,36 +42,14 @@ def warn(lines) -> None:
         print(f"coilshift: {line}", file=sys.stderr)
 
 
-def check_options(args) -> None:
-    """Refuse impossible option values before any file is read, naming the option."""
-    import math
-
-    from coilshift.logger.errors import InputError
-
-    if args.channel < 0:
-        raise InputError(f"--channel {args.channel}: channels are numbered from 0")
-    for opt, value in (("--frame-ms", args.frame_ms), ("--hop-ms", args.hop_ms), ("--baseline-s", args.baseline_s)):
-        if not (math.isfinite(value) and value > 0):
-            raise InputError(f"{opt} {value:g}: must be a positive number")
-    if not math.isfinite(args.min_snr_db):
-        raise InputError(f"--min-snr-db {args.min_snr_db:g}: must be a finite number")
-    if args.band is not None:
-        lo, hi = args.band
-        if not (math.isfinite(lo) and math.isfinite(hi) and 0 <= lo < hi):
-            raise InputError(f"--band {lo:g} {hi:g}: give the lower edge first, 0 <= LO < HI")
-    if args.near is not None and not (math.isfinite(args.near) and args.near > 0):
-        raise InputError(f"--near {args.near:g}: must be a positive frequency")
-
-
 def run(args) -> int:
-    from coilshift.cli.cmd_capture import tracking_from_args
+    from coilshift.cli.cmd_capture import check_tracking_options, tracking_from_args
     from coilshift.cli.common import print_json
-    from coilshift.logger.errors import InputError
     from coilshift.logger.pipeline import track_source
     from coilshift.logger.progress import make_progress
     from coilshift.logger.sources import open_source
 
-    check_options(args)
+    check_tracking_options(args)
     source = open_source(args.input, channel=args.channel)
     settings, corrections = tracking_from_args(args, source.sample_rate_hz)
     early = corrections.warnings()
