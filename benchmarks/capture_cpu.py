@@ -31,10 +31,10 @@ import threading
 import time
 from pathlib import Path
 
-from coilshift.logger.capture import CaptureEngine
-from coilshift.logger.runlog import prepare_run_dir
-from coilshift.logger.soundcard import SoundcardSource
-from coilshift.logger.tracker import TrackerSettings
+from coilshift.logger.capture.engine import CaptureEngine
+from coilshift.logger.runfolder.writer import prepare_run_dir
+from coilshift.logger.sources.soundcard import SoundcardSource
+from coilshift.logger.tracking.tracker import TrackerSettings
 
 
 def play_tone(sink: str, rate: int, seconds: float, freq_hz: float = 1000.0) -> subprocess.Popen:

@@ -47,12 +47,12 @@ def write_log(path: str, rows: int, chunk: int = 1_000_000, seed: int = 1) -> No
 CHILD = r"""
 import json, resource, sys, time
 t0 = time.perf_counter()
-from coilshift.analysis.logread import read_log
+from coilshift.logger.runfolder.reader import read_log
 log = read_log(sys.argv[1], columns=("t_s", "freq_hz", "flags"))
 t1 = time.perf_counter()
 out = {"rows": len(log.table), "read_s": t1 - t0}
 try:
-    from coilshift.analysis.stability import noise_at_tau_hz
+    from coilshift.analysis.stability.analyse import noise_at_tau_hz
     ok = log.usable()
     out["adev_hz_at_1s"] = float(noise_at_tau_hz(log.t_s[ok], log.freq_hz[ok], 1.0))
     out["adev_hz_at_10s"] = float(noise_at_tau_hz(log.t_s[ok], log.freq_hz[ok], 10.0))

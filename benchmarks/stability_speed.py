@@ -12,8 +12,8 @@ import time
 
 import numpy as np
 
-from coilshift.analysis import allan
-from coilshift.analysis.stability import analyse_stability
+from coilshift.analysis.stability import allan
+from coilshift.analysis.stability.analyse import analyse_stability
 
 
 def main(n: int = 1_000_000) -> None:

@@ -42,10 +42,10 @@ def peak_mb():
 
 CHILD = PEAK + r"""
 import json, sys, time
-from coilshift.logger.corrections import Corrections
-from coilshift.logger.pipeline import track_source
-from coilshift.logger.sources import open_source
-from coilshift.logger.tracker import TrackerSettings
+from coilshift.logger.pipeline.corrections import Corrections
+from coilshift.logger.pipeline.batch import track_source
+from coilshift.logger.sources.recorded import open_source
+from coilshift.logger.tracking.tracker import TrackerSettings
 t0 = time.perf_counter()
 src = open_source(sys.argv[1])
 t1 = time.perf_counter()
@@ -59,13 +59,13 @@ print(json.dumps({"open_s": t1 - t0, "track_s": t2 - t1, "frames": s["frames"],
 IMPORTS_ONLY = PEAK + r"""
 import json
 import numpy, pandas, soundfile
-import coilshift.logger.pipeline, coilshift.logger.tracker, coilshift.logger.sources
+import coilshift.logger.pipeline.batch, coilshift.logger.tracking.tracker, coilshift.logger.sources.recorded
 print(json.dumps({"peak_rss_mb": peak_mb()}))
 """
 
 
 def make_source(minutes: float, rate: float):
-    from coilshift.logger.synthetic import ToneSource
+    from coilshift.logger.sources.synthetic import ToneSource
 
     # a slowly drifting oscillator with a target pass every 10 minutes (a 0.5 Hz dip for 20 s)
     def freq(t):

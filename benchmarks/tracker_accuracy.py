@@ -27,10 +27,10 @@ import numpy as np  # noqa: E402
 import scipy.fft as sfft  # noqa: E402
 from numpy.lib.stride_tricks import sliding_window_view  # noqa: E402
 
-from coilshift.logger import estimators as est  # noqa: E402
-from coilshift.logger.pipeline import REPLAY_BLOCK_S  # noqa: E402
-from coilshift.logger.sinefit import fit_sine4_frames  # noqa: E402
-from coilshift.logger.tracker import FrameTracker, TrackerSettings, track_array  # noqa: E402
+from coilshift.logger.tracking import estimators as est  # noqa: E402
+from coilshift.logger.pipeline.batch import REPLAY_BLOCK_S  # noqa: E402
+from coilshift.logger.tracking.sinefit import fit_sine4_frames  # noqa: E402
+from coilshift.logger.tracking.tracker import FrameTracker, TrackerSettings, track_array  # noqa: E402
 
 FS = 48000.0
 

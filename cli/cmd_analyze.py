@@ -52,7 +52,7 @@ def _non_negative(text: str) -> float:
 def add_analysis_options(p: argparse.ArgumentParser, settle: bool = True) -> None:
     """Options shared by ``analyze`` and ``calibrate`` (which analyses its run at the end and has
     its own ``--settle``, applied while recording, so it passes ``settle=False``)."""
-    from coilshift.analysis.defaults import DEFAULT_BOOTSTRAP, DEFAULT_K, DEFAULT_SEED, DEFAULT_SETTLE_S
+    from coilshift.analysis.calibration.defaults import DEFAULT_BOOTSTRAP, DEFAULT_K, DEFAULT_SEED, DEFAULT_SETTLE_S
 
     g = p.add_argument_group("analysis")
     g.add_argument("--threshold-hz", type=_positive, metavar="X",
@@ -96,13 +96,13 @@ def register(subparsers) -> None:
 
 def analysis_kwargs(args) -> dict:
     """Turn the shared analysis options into keyword arguments of ``analyse_run``."""
-    from coilshift.analysis.coil import analyse_coil, load_coil
+    from coilshift.analysis.models.coil import analyse_coil, load_coil
     from coilshift.logger.errors import InputError
 
     coil = analyse_coil(load_coil(args.coil)) if args.coil else None
     models = {}
     if args.target_model:
-        from coilshift.analysis.target import parse_target_spec
+        from coilshift.analysis.models.target import parse_target_spec
 
         if coil is None:
             raise InputError("--target-model needs --coil FILE (the prediction depends on the coil)")
@@ -119,9 +119,9 @@ def report_results(results, args) -> None:
     """Print the summary (text or JSON) and write the output folder when asked."""
     import sys
 
-    from coilshift.analysis.calibration import result_summary
-    from coilshift.analysis.compare import compare_runs, unique_names
-    from coilshift.analysis.report import summary_lines, write_outputs
+    from coilshift.analysis.calibration.run import result_summary
+    from coilshift.analysis.calibration.compare import compare_runs, unique_names
+    from coilshift.analysis.report.calibration_report import summary_lines, write_outputs
     from coilshift.cli.common import new_output_dir, print_json
 
     out = None
@@ -151,7 +151,7 @@ def report_results(results, args) -> None:
 
 
 def run(args) -> int:
-    from coilshift.analysis.calibration import analyse_run
+    from coilshift.analysis.calibration.run import analyse_run
     from coilshift.logger.errors import InputError
 
     if args.markers and len(args.runs) > 1:

@@ -26,7 +26,7 @@ def register(subparsers) -> None:
 
 
 def run(args) -> int:
-    from coilshift.analysis import timer555 as t5
+    from coilshift.analysis.models import timer555 as t5
     from coilshift.cli.common import print_json
     from coilshift.logger.errors import InputError
 

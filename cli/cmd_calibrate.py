@@ -71,11 +71,11 @@ def run(args) -> int:
     from coilshift.cli.cmd_analyze import analysis_kwargs, report_results
     from coilshift.cli.cmd_capture import (WIRING_CAUTION, _synthetic_source, check_tracking_options,
                                           tracking_from_args)
-    from coilshift.logger.capture import CaptureEngine
+    from coilshift.logger.capture.engine import CaptureEngine
     from coilshift.logger.errors import InputError
-    from coilshift.logger.guide import CalibrationGuide, parse_distances, plan_session
-    from coilshift.logger.markers import markers_to_csv
-    from coilshift.logger.runlog import prepare_run_dir, write_markers_copy
+    from coilshift.logger.capture.guide import CalibrationGuide, parse_distances, plan_session
+    from coilshift.logger.runfolder.markers import markers_to_csv
+    from coilshift.logger.runfolder.writer import prepare_run_dir, write_markers_copy
 
     # every check that can fail does so before the device is opened or a folder created
     check_tracking_options(args)
@@ -94,7 +94,7 @@ def run(args) -> int:
     if args.synthetic:
         source = _synthetic_source(args.synthetic, args.rate, None)
     else:
-        from coilshift.logger.soundcard import SoundcardSource
+        from coilshift.logger.sources.soundcard import SoundcardSource
 
         source = SoundcardSource(args.device, args.rate, args.channel)
     settings, corr = tracking_from_args(args, source.sample_rate_hz)
@@ -130,7 +130,7 @@ def run(args) -> int:
     if n_targets == 0:
         print("coilshift: no target stretch was recorded, nothing to analyse", file=sys.stderr)
         return 130 if interrupted else 1
-    from coilshift.analysis.calibration import analyse_run
+    from coilshift.analysis.calibration.run import analyse_run
 
     # run.json has the "calibration" entry: the analysis knows the stretches start settled
     res = analyse_run(run_dir, **kwargs)

@@ -37,7 +37,7 @@ class _KeepEpilog(argparse.HelpFormatter):
 
 
 def register(subparsers) -> None:
-    from coilshift.logger.live_view import KEY_MARKER, KEY_QUIT, KEY_REZERO
+    from coilshift.logger.capture.view import KEY_MARKER, KEY_QUIT, KEY_REZERO
 
     p = subparsers.add_parser(
         "capture",
@@ -118,9 +118,9 @@ def tracking_from_args(args, sample_rate_hz: float):
     """TrackerSettings (band/near moved to the recording's raw Hz) and Corrections from the options."""
     import math
 
-    from coilshift.logger.corrections import Corrections
+    from coilshift.logger.pipeline.corrections import Corrections
     from coilshift.logger.errors import InputError
-    from coilshift.logger.tracker import TrackerSettings
+    from coilshift.logger.tracking.tracker import TrackerSettings
 
     corr = Corrections(clock_ppm=args.clock_ppm, divide=args.divide, nyquist_zone=args.nyquist_zone)
     band = near = None
@@ -152,7 +152,7 @@ def state_path() -> Path:
 
 def show_caution_once(err=None) -> bool:
     """Print the wiring caution the first time capture runs for this user; True if printed."""
-    from coilshift.logger.atomic import write_json_atomic
+    from coilshift.logger.runfolder.atomic import write_json_atomic
 
     err = err or sys.stderr
     path = state_path()
@@ -177,9 +177,9 @@ def show_caution_once(err=None) -> bool:
 
 def _synthetic_source(spec: str, rate: float | None, seconds: float | None):
     """A paced synthetic tone: 'F' or 'F,F2@T2,F3@T3' (Hz, step times in s)."""
-    from coilshift.logger.capture import PacedSource
+    from coilshift.logger.capture.engine import PacedSource
     from coilshift.logger.errors import InputError
-    from coilshift.logger.synthetic import ToneSource
+    from coilshift.logger.sources.synthetic import ToneSource
 
     steps = []
     try:
@@ -208,10 +208,10 @@ def run(args) -> int:
     import signal
 
     from coilshift.cli.common import print_json
-    from coilshift.logger.capture import CaptureEngine
+    from coilshift.logger.capture.engine import CaptureEngine
     from coilshift.logger.errors import InputError
-    from coilshift.logger.live_view import LivePlot, PlainLines, TerminalPanel, status_line
-    from coilshift.logger.runlog import prepare_run_dir
+    from coilshift.logger.capture.view import LivePlot, PlainLines, TerminalPanel, status_line
+    from coilshift.logger.runfolder.writer import prepare_run_dir
 
     if args.seconds is not None and not args.seconds > 0:
         raise InputError(f"--seconds {args.seconds:g}: must be > 0")
@@ -221,7 +221,7 @@ def run(args) -> int:
     if args.synthetic:
         source = _synthetic_source(args.synthetic, args.rate, args.seconds)
     else:
-        from coilshift.logger.soundcard import SoundcardSource
+        from coilshift.logger.sources.soundcard import SoundcardSource
 
         source = SoundcardSource(args.device, args.rate, args.channel)
     settings, corr = tracking_from_args(args, source.sample_rate_hz)

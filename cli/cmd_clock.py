@@ -30,10 +30,10 @@ def register(subparsers) -> None:
 def run(args) -> int:
     from coilshift.cli.common import print_json
     from coilshift.logger.errors import InputError
-    from coilshift.logger.pipeline import measure_clock
+    from coilshift.logger.pipeline.batch import measure_clock
     from coilshift.logger.progress import make_progress
-    from coilshift.logger.sources import open_source
-    from coilshift.logger.tracker import TrackerSettings
+    from coilshift.logger.sources.recorded import open_source
+    from coilshift.logger.tracking.tracker import TrackerSettings
 
     import math
 

@@ -31,7 +31,7 @@ def add_coil_arguments(p) -> None:
 
 def design_from_args(args):
     """A checked CoilDesign from --coil FILE and/or the coil options."""
-    from coilshift.analysis.coil import CoilDesign, check_design, load_coil
+    from coilshift.analysis.models.coil import CoilDesign, check_design, load_coil
     from coilshift.logger.errors import InputError
 
     given = {k: getattr(args, k) for k in _COIL_OPTIONS if getattr(args, k, None) is not None}
@@ -75,7 +75,7 @@ def _fmt(x, unit: str, digits: int = 5) -> str:
 def run(args) -> int:
     import math
 
-    from coilshift.analysis.coil import analyse_coil, capacitance_for_frequency_nf
+    from coilshift.analysis.models.coil import analyse_coil, capacitance_for_frequency_nf
     from coilshift.cli.common import print_json
     from coilshift.logger.errors import InputError
 

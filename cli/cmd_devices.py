@@ -19,7 +19,7 @@ def register(subparsers) -> None:
 def run(args) -> int:
     from coilshift.cli.common import print_json
     from coilshift.logger.errors import InputError
-    from coilshift.logger.soundcard import list_input_devices
+    from coilshift.logger.sources.soundcard import list_input_devices
 
     devices = list_input_devices()
     if not devices:

@@ -117,10 +117,10 @@ def run(args: argparse.Namespace) -> int:
     import math
     import sys
 
-    from coilshift.analysis.logread import read_log
-    from coilshift.analysis.stability import analyse_stability, read_temperature_csv
+    from coilshift.logger.runfolder.reader import read_log
+    from coilshift.analysis.stability.analyse import analyse_stability, read_temperature_csv
     from coilshift.cli.common import new_output_dir, print_json, to_jsonable
-    from coilshift.logger.atomic import write_text_atomic
+    from coilshift.logger.runfolder.atomic import write_text_atomic
     from coilshift.logger.errors import InputError
 
     if not 0 < args.confidence < 1:
@@ -146,7 +146,7 @@ def run(args: argparse.Namespace) -> int:
     if log.interrupted:
         summary["log_interrupted"] = True
     if args.out:
-        from coilshift.analysis.plots_stability import plot_drift, plot_sigma_tau
+        from coilshift.analysis.report.plots_stability import plot_drift, plot_sigma_tau
 
         out = new_output_dir(args.out, args.force)
         plot_sigma_tau(res, out / PLOT_SIGMA)

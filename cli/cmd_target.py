@@ -45,8 +45,8 @@ def register(subparsers) -> None:
 
 def target_from_args(args):
     """A TargetSpec from --target SPEC or the --material/--conductivity/--mu-r/--diameter options."""
-    from coilshift.analysis.materials import find_material
-    from coilshift.analysis.target import make_target, parse_target_spec
+    from coilshift.analysis.models.materials import find_material
+    from coilshift.analysis.models.target import make_target, parse_target_spec
     from coilshift.logger.errors import InputError
 
     loose = (args.material, args.conductivity_s_per_m, args.mu_r, args.diameter_mm)
@@ -61,7 +61,7 @@ def target_from_args(args):
     if args.material:
         mat = find_material(args.material)
         if mat is None:
-            from coilshift.analysis.materials import MATERIALS
+            from coilshift.analysis.models.materials import MATERIALS
 
             raise InputError(f"--material {args.material!r}: unknown (known: {', '.join(MATERIALS)})")
         name = mat.name
@@ -91,8 +91,8 @@ def threshold_from_args(args) -> float | None:
     else:
         import numpy as np
 
-        from coilshift.analysis.logread import read_log
-        from coilshift.analysis.stability import noise_at_tau_hz
+        from coilshift.logger.runfolder.reader import read_log
+        from coilshift.analysis.stability.analyse import noise_at_tau_hz
 
         if not (math.isfinite(args.tau_s) and args.tau_s > 0):
             raise InputError(f"--tau-s {args.tau_s}: must be positive")
@@ -108,8 +108,8 @@ def threshold_from_args(args) -> float | None:
 def run(args) -> int:
     import numpy as np
 
-    from coilshift.analysis.coil import analyse_coil
-    from coilshift.analysis.target import (closed_form_range_mm, induction_number, predicted_range_mm,
+    from coilshift.analysis.models.coil import analyse_coil
+    from coilshift.analysis.models.target import (closed_form_range_mm, induction_number, predicted_range_mm,
                                            predicted_response)
     from coilshift.cli.cmd_coil import design_from_args
     from coilshift.cli.common import print_json
@@ -170,10 +170,10 @@ def _write_outputs(args, rep, target, pred, summary) -> list[str]:
     """prediction.csv (the table), prediction.json (the summary) and the plot, in a new folder."""
     import numpy as np
 
-    from coilshift.analysis.plots_models import plot_predicted_shift
-    from coilshift.analysis.target import closed_form_amplitude_hz, predicted_shift_hz
+    from coilshift.analysis.report.plots_models import plot_predicted_shift
+    from coilshift.analysis.models.target import closed_form_amplitude_hz, predicted_shift_hz
     from coilshift.cli.common import new_output_dir, to_jsonable
-    from coilshift.logger.atomic import write_json_atomic, write_text_atomic
+    from coilshift.logger.runfolder.atomic import write_json_atomic, write_text_atomic
 
     folder = new_output_dir(args.out, args.force)
     rows = ["distance_mm,shift_hz,delta_l_uh,delta_r_ohm,delta_inv_q"]

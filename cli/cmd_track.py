@@ -45,9 +45,9 @@ def warn(lines) -> None:
 def run(args) -> int:
     from coilshift.cli.cmd_capture import check_tracking_options, tracking_from_args
     from coilshift.cli.common import print_json
-    from coilshift.logger.pipeline import track_source
+    from coilshift.logger.pipeline.batch import track_source
     from coilshift.logger.progress import make_progress
-    from coilshift.logger.sources import open_source
+    from coilshift.logger.sources.recorded import open_source
 
     check_tracking_options(args)
     source = open_source(args.input, channel=args.channel)

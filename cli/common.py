@@ -6,7 +6,7 @@ import json
 import sys
 from pathlib import Path
 
-from coilshift.logger.atomic import to_jsonable  # noqa: F401  (re-exported for the commands)
+from coilshift.logger.runfolder.atomic import to_jsonable  # noqa: F401  (re-exported for the commands)
 from coilshift.logger.errors import InputError
 
 

@@ -9,7 +9,7 @@ import pkgutil
 import sys
 
 from coilshift.logger.errors import InputError
-from coilshift.logger.runlog import software_version
+from coilshift.logger.runfolder.writer import software_version
 
 PROG = "coilshift"
 

@@ -6,7 +6,7 @@ import json
 import os
 from pathlib import Path
 
-from .errors import InputError
+from coilshift.logger.errors import InputError
 
 
 def read_text(path: str | os.PathLike, what: str = "file") -> str:

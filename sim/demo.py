@@ -31,10 +31,10 @@ from typing import Callable
 
 import numpy as np
 
-from coilshift.logger.atomic import write_text_atomic
+from coilshift.logger.runfolder.atomic import write_text_atomic
 
-from .render import plan, simulate
-from .script import parse_script
+from coilshift.sim.render import plan, simulate
+from coilshift.sim.script import parse_script
 
 SAMPLE_RATE_HZ = 48000
 DISTANCES_MM = [20, 40, 70, 110, 160]
@@ -49,7 +49,7 @@ COILS = {
 }
 #: the capacitors as fitted on the bench (within their 5 % tolerance)
 CAP_AS_FITTED_NF = {"A-150": 224.5, "B-200": 263.0}
-#: the test pieces as designed: handbook materials (coilshift.analysis.materials)
+#: the test pieces as designed: handbook materials (coilshift.analysis.models.materials)
 PIECES_DESIGN = {
     "steel ball": {"material": "mild_steel", "diameter_mm": 25},
     "aluminium ball": {"material": "aluminium", "diameter_mm": 25},
@@ -121,9 +121,9 @@ class DemoRow:
 
 
 def _track(recording: Path, markers: Path | None, run_dir: Path) -> dict:
-    from coilshift.logger.pipeline import track_source
-    from coilshift.logger.sources import open_source
-    from coilshift.logger.tracker import TrackerSettings
+    from coilshift.logger.pipeline.batch import track_source
+    from coilshift.logger.sources.recorded import open_source
+    from coilshift.logger.tracking.tracker import TrackerSettings
 
     return track_source(open_source(recording), TrackerSettings(), None, run_dir, markers=markers)
 
@@ -155,13 +155,13 @@ def run_demo(out_dir: str | os.PathLike, force: bool = False,
 
     Returns a summary dict (paths, rows, timings). ``say`` receives one-line progress messages.
     """
-    from coilshift.analysis.calibration import analyse_run
-    from coilshift.analysis.coil import analyse_coil, design_from_dict
-    from coilshift.analysis.logread import read_log
-    from coilshift.analysis.plots_stability import plot_drift, plot_sigma_tau
-    from coilshift.analysis.report import write_outputs
-    from coilshift.analysis.stability import analyse_stability
-    from coilshift.analysis.target import parse_target_spec, predicted_range_mm
+    from coilshift.analysis.calibration.run import analyse_run
+    from coilshift.analysis.models.coil import analyse_coil, design_from_dict
+    from coilshift.logger.runfolder.reader import read_log
+    from coilshift.analysis.report.plots_stability import plot_drift, plot_sigma_tau
+    from coilshift.analysis.report.calibration_report import write_outputs
+    from coilshift.analysis.stability.analyse import analyse_stability
+    from coilshift.analysis.models.target import parse_target_spec, predicted_range_mm
     from coilshift.cli.common import new_output_dir, to_jsonable
 
     t_start = time.monotonic()

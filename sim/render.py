@@ -20,12 +20,12 @@ from typing import Iterator
 
 import numpy as np
 
-from coilshift.logger.atomic import write_json_atomic, write_text_atomic
-from coilshift.logger.markers import BASELINE, Marker, markers_to_csv
+from coilshift.logger.runfolder.atomic import write_json_atomic, write_text_atomic
+from coilshift.logger.runfolder.markers import BASELINE, Marker, markers_to_csv
 
-from .oscillator import PhaseNoise, PulseSynth, Schedule, apparent_freq_hz, drift_hz
-from .response import build_responses
-from .script import Script
+from coilshift.sim.oscillator import PhaseNoise, PulseSynth, Schedule, apparent_freq_hz, drift_hz
+from coilshift.sim.response import build_responses
+from coilshift.sim.script import Script
 
 TRUTH_FORMAT = "coilshift-sim-truth"
 TRUTH_VERSION = 1
@@ -194,7 +194,7 @@ def truth_for(p: Plan) -> dict:
 def _inductance_uh(s: Script):
     if s.oscillator.coil is None:
         return None
-    from .script import coil_report
+    from coilshift.sim.script import coil_report
 
     return float(coil_report(s.oscillator.coil, s.name).inductance_uh)
 

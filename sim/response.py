@@ -6,7 +6,7 @@ Two kinds:
   loop of radius R. The loop's field at the target falls as (a^2/(a^2+z^2))^(3/2) (Biot-Savart on
   the axis) and, by reciprocity, the coupling back into the coil carries the same factor again, so
   dL and df/f = -dL/(2L) fall as its square (Wait 1951 for the sphere's dipole moment);
-* physical: the models' :func:`coilshift.analysis.target.predicted_shift_hz` for a material, shape
+* physical: the models' :func:`coilshift.analysis.models.target.predicted_shift_hz` for a material, shape
   and size in front of a designed coil.
 """
 
@@ -93,8 +93,8 @@ def build_responses(script) -> dict[str, Response]:
 def _physical(name: str, spec: dict, osc, where: str) -> Response:
     w = f"{where}: targets.{name}"
     try:
-        from coilshift.analysis import coil as coilmod
-        from coilshift.analysis import target as targetmod
+        from coilshift.analysis.models import coil as coilmod
+        from coilshift.analysis.models import target as targetmod
     except ImportError:
         raise InputError(f"{w}: target models are not available in this installation; "
                          "use peak_shift_hz and coil_radius_mm") from None
@@ -116,7 +116,7 @@ def _physical(name: str, spec: dict, osc, where: str) -> Response:
         raise InputError(f"{w}: {exc}") from None
     if probe.shape != (2,) or not np.all(np.isfinite(probe)):
         raise InputError(f"{w}: the target model gave no finite shift for this target")
-    return Response(name, shift, {"model": "coilshift.analysis.target", "spec": spec,
+    return Response(name, shift, {"model": "coilshift.analysis.models.target", "spec": spec,
                                   "target": tspec.to_dict(),
                                   "inductance_uh": float(report.inductance_uh), "freq_hz": freq})
 

@@ -32,8 +32,8 @@ coil), ``targets`` (when the session uses any) and ``session``. Units are in the
 
 A target is either parametric (``peak_shift_hz`` A and ``coil_radius_mm`` R: the on-axis dipole
 response ``A (R^2/(R^2+d^2))^3``) or physical (``material``, ``shape`` and size keys, handed to
-:mod:`coilshift.analysis.target`; needs the oscillator's ``coil``). The oscillator frequency is
-either ``freq_hz`` or set by a ``coil`` (the fields of :class:`coilshift.analysis.coil.CoilDesign`,
+:mod:`coilshift.analysis.models.target`; needs the oscillator's ``coil``). The oscillator frequency is
+either ``freq_hz`` or set by a ``coil`` (the fields of :class:`coilshift.analysis.models.coil.CoilDesign`,
 with ``cap_nf`` the tuning capacitor) through f = 1/(2 pi sqrt(L C)).
 """
 
@@ -46,7 +46,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from coilshift.logger.errors import InputError
-from coilshift.logger.markers import BASELINE
+from coilshift.logger.runfolder.markers import BASELINE
 from coilshift.logger.textfile import read_json
 
 ENCODINGS = ("wav", "flac")
@@ -239,7 +239,7 @@ def _oscillator(c: _Checker, d: dict) -> Oscillator:
 def coil_frequency_hz(coil: dict, where: str) -> float:
     """Operating frequency of an LC oscillator tuned by ``coil['cap_nf']``: 1/(2 pi sqrt(L C)).
 
-    The inductance and frequency come from :func:`coilshift.analysis.coil.analyse_coil`
+    The inductance and frequency come from :func:`coilshift.analysis.models.coil.analyse_coil`
     (Wheeler's formulas; Thomson's formula for the LC frequency).
     """
     report = coil_report(coil, where)
@@ -250,9 +250,9 @@ def coil_frequency_hz(coil: dict, where: str) -> float:
 
 
 def coil_report(coil: dict, where: str):
-    """The models' :class:`~coilshift.analysis.coil.CoilReport` for a script's coil dict."""
+    """The models' :class:`~coilshift.analysis.models.coil.CoilReport` for a script's coil dict."""
     try:
-        from coilshift.analysis import coil as coilmod
+        from coilshift.analysis.models import coil as coilmod
     except ImportError:
         raise InputError(f"{where}: coil models are not available in this installation; "
                          "give oscillator.freq_hz instead") from None
@@ -356,7 +356,7 @@ def parse_script(obj: Any, name: str = "script") -> Script:
     if script.duration_s * rec.sample_rate_hz > 2 ** 31:
         c.fail("session", f"too long ({script.duration_s:.0f} s at {rec.sample_rate_hz:g} Hz)")
     # build every target's response now, so a bad physical spec fails before any audio is written
-    from .response import build_responses
+    from coilshift.sim.response import build_responses
 
     build_responses(script)
     return script

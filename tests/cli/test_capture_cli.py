@@ -3,7 +3,7 @@
 The capture runs use the hidden paced synthetic source (``--synthetic``), which drives the same
 engine in real time without a soundcard; the real audio stack is covered in
 tests/logger/test_soundcard_e2e.py. The live log is checked against the offline tracker
-(:func:`coilshift.logger.tracker.track_array`) run on the same synthetic samples: the capture
+(:func:`coilshift.logger.tracking.tracker.track_array`) run on the same synthetic samples: the capture
 path must reproduce it exactly (same frames, same times), since the tracker's output does not
 depend on how the signal is cut into blocks.
 """
@@ -21,11 +21,11 @@ import time
 import numpy as np
 import pytest
 
-from coilshift.analysis.logread import read_log
+from coilshift.logger.runfolder.reader import read_log
 from coilshift.cli import cmd_capture
 from coilshift.cli.main import main
-from coilshift.logger.synthetic import ToneSource
-from coilshift.logger.tracker import TrackerSettings, track_array
+from coilshift.logger.sources.synthetic import ToneSource
+from coilshift.logger.tracking.tracker import TrackerSettings, track_array
 
 FS = 48000
 

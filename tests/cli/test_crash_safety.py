@@ -29,9 +29,9 @@ import numpy as np
 import pytest
 from reliability_helpers import cli, one_line_error, snapshot, tone, wav16, write_small_run
 
-from coilshift.analysis.logread import read_log
+from coilshift.logger.runfolder.reader import read_log
 from coilshift.cli.main import main
-from coilshift.logger import runlog
+from coilshift.logger.runfolder import writer as runlog
 
 
 def _quiet_config(monkeypatch, tmp_path):
@@ -51,7 +51,7 @@ def _small_run(path: Path, n=4000) -> Path:
 
 WRITER = textwrap.dedent("""
     import sys
-    from coilshift.logger.atomic import write_bytes_atomic
+    from coilshift.logger.runfolder.atomic import write_bytes_atomic
     path = sys.argv[1]
     versions = [bytes([65 + k]) * (1 << 21) for k in range(3)]  # 2 MB of A, of B, of C
     print("ready", flush=True)

@@ -14,7 +14,7 @@ import numpy as np
 import pytest
 import soundfile as sf
 
-from coilshift.logger.synthetic import ToneSource
+from coilshift.logger.sources.synthetic import ToneSource
 
 FS = 48000
 

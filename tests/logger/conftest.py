@@ -24,7 +24,7 @@ SINK = "coilshift_test_sink"
 
 
 class ScriptedSource:
-    """A block source that plays a script; see :mod:`coilshift.logger.capture` for the interface.
+    """A block source that plays a script; see :mod:`coilshift.logger.capture.engine` for the interface.
 
     Steps: ``("block", samples, overflow)``, ``("error", message)`` (calls ``fail``),
     ``("stall",)`` (stops delivering, no error), ``("call", fn)`` (runs ``fn()`` between blocks,
@@ -165,7 +165,7 @@ def virtual_audio():
     old_source = _pactl("get-default-source").stdout.strip()
     _pactl("set-default-source", f"{SINK}.monitor")
     from coilshift.logger.errors import InputError
-    from coilshift.logger.soundcard import rescan_devices
+    from coilshift.logger.sources.soundcard import rescan_devices
 
     try:
         rescan_devices()  # PortAudio lists devices once per initialisation

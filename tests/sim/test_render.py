@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 import soundfile as sf
 
-from coilshift.logger.markers import check_within, read_markers
+from coilshift.logger.runfolder.markers import check_within, read_markers
 from coilshift.sim.render import TAIL_S, blocks, markers_for, plan, render_array, simulate, truth_for
 from coilshift.sim.script import parse_script
 from sim_helpers import script_dict, zero_crossing_freq_hz
@@ -168,10 +168,10 @@ def test_clipping_and_hum():
 
 def test_coil_and_physical_targets_drive_the_tone():
     # The oscillator runs at the coil's LC frequency and a physical target shifts it by the models'
-    # prediction (coilshift.analysis.coil / .target, tested against Wheeler 1928, Grover's tables
+    # prediction (coilshift.analysis.models.coil / .target, tested against Wheeler 1928, Grover's tables
     # and Wait 1951 there); here the zero-crossing count of the rendered tone must show both.
-    from coilshift.analysis.coil import analyse_coil, design_from_dict
-    from coilshift.analysis.target import parse_target_spec, predicted_shift_hz
+    from coilshift.analysis.models.coil import analyse_coil, design_from_dict
+    from coilshift.analysis.models.target import parse_target_spec, predicted_shift_hz
 
     coil = {"turns": 32, "inner_diameter_mm": 200, "length_mm": 7, "depth_mm": 7, "awg": 25, "cap_nf": 270}
     d = script_dict(oscillator={"coil": coil}, recording={"max_harmonic": 1},

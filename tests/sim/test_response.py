@@ -35,8 +35,8 @@ def test_dipole_range_closed_form_matches_root():
 
 def test_physical_ranges_match_models():
     # the simulator's numeric root against the models' own range solver (an independent implementation)
-    from coilshift.analysis.coil import analyse_coil, design_from_dict
-    from coilshift.analysis.target import parse_target_spec, predicted_range_mm
+    from coilshift.analysis.models.coil import analyse_coil, design_from_dict
+    from coilshift.analysis.models.target import parse_target_spec, predicted_range_mm
 
     coil = {"turns": 40, "inner_diameter_mm": 150, "length_mm": 6, "depth_mm": 6, "awg": 26, "cap_nf": 220}
     d = script_dict(oscillator={"coil": coil},

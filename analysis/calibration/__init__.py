@@ -1,0 +1,3 @@
+"""Calibration analysis: per-step shifts with honest errors, curve fits, detection range,
+ferrous calls, run comparison. May import :mod:`coilshift.logger.runfolder`, analysis.stability
+and analysis.models; never writes files."""

@@ -1,0 +1,62 @@
+"""Several calibration runs side by side (e.g. two coils, two oscillators, before and after).
+
+Targets are matched by name. The comparison is a table of ranges (with intervals) and calls per
+target and run; the overlay of curves is drawn by :mod:`.plots_calibration`.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from coilshift.analysis.calibration.run import CalibrationResult
+
+
+@dataclass(frozen=True)
+class ComparisonRow:
+    """One target across runs: per run (name -> value) its range, interval and call."""
+
+    target: str
+    range_mm: dict
+    range_ci_mm: dict
+    cls: dict
+
+    def to_dict(self) -> dict:
+        return {"target": self.target, "range_mm": dict(self.range_mm),
+                "range_ci_mm": {k: (list(v) if v else None) for k, v in self.range_ci_mm.items()},
+                "class": dict(self.cls)}
+
+
+def unique_names(results: list[CalibrationResult]) -> list[str]:
+    """Short run names (folder names), made unique with a numeric suffix where they collide."""
+    seen: dict[str, int] = {}
+    out = []
+    for r in results:
+        base = r.name
+        seen[base] = seen.get(base, 0) + 1
+        out.append(base if seen[base] == 1 else f"{base}-{seen[base]}")
+    return out
+
+
+def compare_runs(results: list[CalibrationResult], names: list[str] | None = None) -> list[ComparisonRow]:
+    """Ranges and calls of every target across the runs (targets in first-seen order).
+
+    A run without the target has no entry for it (the target is simply absent from its dicts).
+    """
+    names = names or unique_names(results)
+    order: list[str] = []
+    for r in results:
+        for t in r.targets:
+            if t.target not in order:
+                order.append(t.target)
+    rows = []
+    for tname in order:
+        rng, ci, cls = {}, {}, {}
+        for run_name, r in zip(names, results):
+            t = r.target(tname)
+            if t is None:
+                continue
+            rng[run_name] = t.range.range_mm
+            ci[run_name] = t.range.ci_mm
+            cls[run_name] = t.cls
+        rows.append(ComparisonRow(tname, rng, ci, cls))
+    return rows

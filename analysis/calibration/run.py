@@ -1,0 +1,318 @@
+"""A calibration run, from its log to curves, ranges and calls: the orchestration layer.
+
+``analyse_run`` reads a run folder (or a log CSV with a separate markers file), measures every
+target stretch against its bracketing baselines (:mod:`.steps`), combines repeats, fits the
+shift-versus-distance curve of each target (:mod:`.curvefit`), sets the detection threshold
+from the baseline noise at the dwell time (:mod:`.detection`), derives the range with its
+bootstrap interval, calls each target ferrous or non-ferrous (:mod:`.classify`), and, given a
+coil and target models, compares the measured curve with the predicted one. Nothing here
+writes files; :mod:`.report` and :mod:`.plots_calibration` turn the result into outputs.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from coilshift.logger.errors import InputError
+from coilshift.logger.runfolder.markers import check_within, read_markers
+
+from coilshift.analysis.calibration import classify as _classify
+from coilshift.analysis.calibration.curvefit import CurveFit, FitError, fit_dipole, fit_power_law
+from coilshift.analysis.calibration.detection import (DEFAULT_BOOTSTRAP, DEFAULT_K, DEFAULT_SEED, RangeResult, detection_range,
+                        noise_at_dwell_hz, numeric_range_mm)
+from coilshift.logger.runfolder.reader import FrequencyLog, read_log
+from coilshift.analysis.calibration.steps import DEFAULT_SETTLE_S, MIN_FRAMES, Point, Segment, Step, combine_repeats, compute_steps
+
+#: baseline noise this many times the typical step error means drift, not noise, sets the
+#: threshold (for white or short-correlated noise the two are about equal)
+DRIFT_DOMINATED_RATIO = 10.0
+
+
+@dataclass
+class Prediction:
+    """Predicted curve of one target from the coil and target models, and how the run compares.
+
+    Attributes
+    ----------
+    spec : the target model (``coilshift.analysis.models.target.TargetSpec``)
+    freq_hz : operating frequency used (the run's baseline)
+    distance_mm, shift_hz : predicted shift at the calibration distances
+    ratio : measured/predicted per calibration point (NaN where the prediction is 0)
+    scale, scale_err : least-squares factor ``measured ~ scale x predicted`` and its error
+    """
+
+    spec: object
+    freq_hz: float
+    distance_mm: np.ndarray
+    shift_hz: np.ndarray
+    ratio: np.ndarray
+    scale: float
+    scale_err: float
+
+    def curve(self, coil, distance_mm) -> np.ndarray:
+        from coilshift.analysis.models.target import predicted_shift_hz
+
+        return predicted_shift_hz(coil, self.spec, distance_mm, self.freq_hz)
+
+
+@dataclass
+class TargetResult:
+    """Everything found for one target of one run."""
+
+    target: str
+    points: list[Point]
+    fit: CurveFit | None
+    fit_reason: str
+    power_fit: CurveFit | None
+    range: RangeResult
+    power_range_mm: float
+    classification: _classify.Classification
+    prediction: Prediction | None = None
+
+    @property
+    def cls(self) -> str:
+        return self.classification.cls
+
+
+@dataclass
+class CalibrationResult:
+    """The analysed calibration run (see :func:`analyse_run`)."""
+
+    source: str
+    name: str
+    log: FrequencyLog = field(repr=False)
+    steps: list[Step]
+    baselines: list[Segment]
+    targets: list[TargetResult]
+    baseline_hz: float
+    dwell_s: float
+    noise_hz: float
+    noise_tau_s: float
+    threshold_hz: float
+    threshold_source: str
+    k: float
+    settle_s: float
+    polarity: str
+    coil: object | None = None
+    radius_mm: float | None = None
+    warnings: list[str] = field(default_factory=list)
+
+    def target(self, name: str) -> TargetResult | None:
+        return next((t for t in self.targets if t.target == name), None)
+
+
+def _baseline_only(log: FrequencyLog, baselines: list[Segment], usable: np.ndarray) -> np.ndarray:
+    f = np.full(log.t_s.size, np.nan)
+    t, freq = log.t_s, log.freq_hz
+    for b in baselines:
+        i0, i1 = int(np.searchsorted(t, b.used_start_s, "left")), int(np.searchsorted(t, b.used_end_s, "right"))
+        f[i0:i1] = np.where(usable[i0:i1], freq[i0:i1], np.nan)
+    return f
+
+
+def _prediction(coil, spec, freq_hz: float, pts: list[Point]) -> Prediction:
+    from coilshift.analysis.models.target import predicted_shift_hz
+
+    d = np.array([p.distance_mm for p in pts], float)
+    y = np.array([p.shift_hz for p in pts], float)
+    e = np.array([p.stderr_hz for p in pts], float)
+    pred = np.asarray(predicted_shift_hz(coil, spec, d, freq_hz), float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = np.where(pred != 0, y / pred, np.nan)
+    ok = np.isfinite(e) & (e > 0) & (pred != 0)
+    if ok.any():
+        w = 1.0 / e[ok] ** 2
+        den = float(np.sum(w * pred[ok] ** 2))
+        scale = float(np.sum(w * y[ok] * pred[ok]) / den)
+        scale_err = 1.0 / math.sqrt(den)
+    else:
+        scale = scale_err = math.nan
+    return Prediction(spec, freq_hz, d, pred, ratio, scale, scale_err)
+
+
+def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None = None, *,
+                settle_s: float | None = None, threshold_hz: float | None = None,
+                k: float = DEFAULT_K, coil=None, target_models: dict | None = None,
+                polarity: str = "normal", reference: dict[str, str] | None = None,
+                fit_offset: bool = False, n_boot: int = DEFAULT_BOOTSTRAP,
+                seed: int = DEFAULT_SEED, name: str | None = None) -> CalibrationResult:
+    """Analyse one calibration run.
+
+    Parameters
+    ----------
+    path : run folder or log CSV
+    markers_path : markers CSV to use instead of the run's own markers.csv
+    settle_s : time dropped at each end of every stretch (s); None: 0 for runs recorded by
+        ``coilshift calibrate`` (run.json has a ``calibration`` entry: its stretches start settled),
+        else :data:`~coilshift.analysis.calibration.steps.DEFAULT_SETTLE_S`
+    threshold_hz : detection threshold; default ``k`` x the baseline Allan deviation at the dwell
+    k : threshold factor on the noise
+    coil : a ``CoilReport`` (from ``analyse_coil``); its mean radius fixes R in the fits
+    target_models : target name -> ``TargetSpec`` for predicted curves (needs ``coil``)
+    polarity : ``normal`` (frequency down = ferrous) or ``inverted``
+    reference : target name -> declared kind, to check the polarity
+    fit_offset : also fit the housing offset d0
+    n_boot, seed : bootstrap replicates and seed for the range interval
+
+    Returns
+    -------
+    CalibrationResult
+
+    Raises
+    ------
+    InputError : unreadable log or markers, no markers, no baselines or targets, bad options
+    """
+    if polarity not in _classify.POLARITIES:
+        raise InputError(f"polarity: must be normal or inverted, got {polarity!r}")
+    if threshold_hz is not None and not (math.isfinite(threshold_hz) and threshold_hz > 0):
+        raise InputError(f"threshold: must be a positive number of hertz, got {threshold_hz}")
+    if not (math.isfinite(k) and k > 0):
+        raise InputError(f"noise factor: must be positive, got {k}")
+    if settle_s is not None and not (math.isfinite(settle_s) and settle_s >= 0):
+        raise InputError(f"settling time: must be zero or positive seconds, got {settle_s}")
+    target_models = dict(target_models or {})
+    reference = dict(reference or {})
+    for tname, kind in reference.items():
+        if kind not in _classify.CLASSES:
+            raise InputError(f"reference target {tname}: kind must be ferrous or non-ferrous, got {kind!r}")
+    if target_models and coil is None:
+        raise InputError("target models need a coil (--coil FILE) to predict a curve")
+    log = read_log(path, columns=("flags",))  # the analysis needs time, frequency and flags only
+    src = str(path)
+    if settle_s is None:
+        settle_s = 0.0 if isinstance(log.meta.get("calibration"), dict) else DEFAULT_SETTLE_S
+    if markers_path is not None:
+        markers = read_markers(markers_path)
+        t = log.t_s
+        # frame times are frame centres: the recording runs on about one hop past the last one
+        hop = float(np.median(np.diff(t))) if t.size > 1 else 0.0
+        check_within(markers, float(t[-1]) + hop, str(markers_path))
+    else:
+        markers = log.markers
+        if not markers:
+            raise InputError(f"{src}: no markers.csv in the run; give the stretches with --markers FILE")
+    usable = log.usable()
+    steps, bases = compute_steps(log.t_s, log.freq_hz, markers, usable, settle_s, source=src)
+    warnings: list[str] = []
+    if log.interrupted:
+        warnings.append("the run was interrupted: the log ends early")
+    dropped = sum(1 for m in markers if not m.is_baseline) - len(steps)
+    dropped_b = sum(1 for m in markers if m.is_baseline) - len(bases)
+    if dropped or dropped_b:
+        warnings.append(f"{dropped} target and {dropped_b} baseline stretch(es) left out: fewer than "
+                        f"{MIN_FRAMES} usable frames after settling (no tone, gaps, or too short)")
+    n_unbr = sum(1 for s in steps if not s.bracketed)
+    if n_unbr:
+        warnings.append(f"{n_unbr} target stretch(es) have a baseline on one side only: drift not removed there")
+    points = combine_repeats(steps)
+    for p in points:
+        if not p.consistent:
+            warnings.append(f"{p.target} at {p.distance_mm:g} mm: the {p.repeats} repeats disagree beyond "
+                            f"their errors (chi2 {p.chi2:.1f}); error enlarged to cover the scatter")
+    baseline_hz = float(np.median([b.stat.mean for b in bases]))
+    dwell_s = float(np.median([s.end_s - s.start_s for s in steps]))
+    noise_hz, noise_tau = noise_at_dwell_hz(log.t_s, _baseline_only(log, bases, usable), dwell_s)
+    if threshold_hz is not None:
+        thr, thr_src = float(threshold_hz), "given"
+    elif math.isfinite(noise_hz):
+        thr, thr_src = k * noise_hz, f"{k:g} x noise"
+        if noise_tau < dwell_s:
+            warnings.append(f"baselines too short for the noise at the {dwell_s:g} s dwell; used the noise "
+                            f"at {noise_tau:g} s (higher, so the threshold errs high). Record a first "
+                            "baseline of at least twice the dwell.")
+    else:
+        thr, thr_src = math.nan, "none"
+        warnings.append("no noise estimate from the baselines and no --threshold-hz: ranges undefined")
+    typical_err = float(np.median([s.stderr_hz for s in steps]))
+    if math.isfinite(noise_hz) and typical_err > 0 and noise_hz > DRIFT_DOMINATED_RATIO * typical_err:
+        warnings.append(f"the baseline noise at the dwell ({noise_hz:.3g} Hz) is {noise_hz / typical_err:.0f} x the "
+                        f"typical step error ({typical_err:.3g} Hz): drift or slow wander dominates it"
+                        + (" and sets the threshold; let the oscillator warm up, shorten the dwell, or give "
+                           "--threshold-hz" if thr_src != "given" else ""))
+    radius = None
+    if coil is not None:
+        radius = float(coil.mean_radius_mm)
+    targets: list[TargetResult] = []
+    by_target: dict[str, list[Point]] = {}
+    for p in points:
+        by_target.setdefault(p.target, []).append(p)
+    for tname, pts in by_target.items():
+        d = [p.distance_mm for p in pts]
+        y = [p.shift_hz for p in pts]
+        e = [p.stderr_hz for p in pts]
+        fit = power = None
+        reason = ""
+        try:
+            fit = fit_dipole(d, y, e, radius_mm=radius, fit_offset=fit_offset)
+        except FitError as exc:
+            reason = f"no curve: {exc}"
+        try:
+            power = fit_power_law(d, y, e)
+        except FitError:
+            power = None
+        rng_res = detection_range(fit, thr, n_boot=n_boot, seed=seed, fit_reason=reason)
+        p_range = numeric_range_mm(power, thr) if power is not None else math.nan
+        call = _classify.classify_points(tname, pts, thr, polarity)
+        pred = None
+        if tname in target_models:
+            pred = _prediction(coil, target_models[tname], baseline_hz, pts)
+        targets.append(TargetResult(tname, pts, fit, reason, power, rng_res, p_range, call, pred))
+    for tname in target_models:
+        if tname not in by_target:
+            warnings.append(f"target model {tname!r} names no target of this run")
+    classes = {t.target: t.classification for t in targets}
+    warnings += _classify.check_reference(classes, reference, polarity)
+    if any(t.classification.n_significant and t.cls == _classify.INDETERMINATE for t in targets):
+        warnings.append(_classify.MIXED_STEEL_CAUTION)
+    return CalibrationResult(src, name or Path(src).name or src, log, steps, bases, targets, baseline_hz, dwell_s,
+                             noise_hz, noise_tau, thr, thr_src, k, settle_s, polarity, coil, radius, warnings)
+
+
+def result_summary(res: CalibrationResult) -> dict:
+    """The run in the documented ``--json`` shape (exactly these keys).
+
+    ``{"targets": [{"target", "class", "points": [{"distance_mm", "shift_hz", "stderr_hz"}],
+    "range_mm", "range_ci_mm"}], "threshold_hz", "noise_hz"}``; undefined values are None.
+    """
+    out = []
+    for t in res.targets:
+        ci = list(t.range.ci_mm) if t.range.ci_mm is not None else None
+        out.append({"target": t.target, "class": t.cls,
+                    "points": [{"distance_mm": p.distance_mm, "shift_hz": p.shift_hz, "stderr_hz": p.stderr_hz}
+                               for p in t.points],
+                    "range_mm": t.range.range_mm, "range_ci_mm": ci})
+    return {"targets": out, "threshold_hz": _num(res.threshold_hz), "noise_hz": _num(res.noise_hz)}
+
+
+def _num(x):
+    return float(x) if x is not None and math.isfinite(x) else None
+
+
+def result_details(res: CalibrationResult) -> dict:
+    """Everything a reader of ``result.json`` may want: the summary plus fits, calls and settings."""
+    targets = []
+    for t in res.targets:
+        item = {"target": t.target, "class": t.cls, "class_reason": t.classification.reason,
+                "points": [{"distance_mm": p.distance_mm, "shift_hz": p.shift_hz, "stderr_hz": p.stderr_hz,
+                            "n": p.n, "repeats": p.repeats, "repeats_consistent": p.consistent}
+                           for p in t.points],
+                "fit": t.fit.to_dict() if t.fit else None, "fit_reason": t.fit_reason,
+                "power_law": t.power_fit.to_dict() if t.power_fit else None,
+                "power_law_range_mm": t.power_range_mm, **t.range.to_dict()}
+        if t.prediction is not None:
+            pr = t.prediction
+            item["prediction"] = {"model": pr.spec.to_dict(), "freq_hz": pr.freq_hz,
+                                  "predicted_shift_hz": pr.shift_hz, "measured_over_predicted": pr.ratio,
+                                  "scale": pr.scale, "scale_err": pr.scale_err}
+        targets.append(item)
+    return {"run": res.source, "targets": targets, "threshold_hz": res.threshold_hz,
+            "threshold_source": res.threshold_source, "noise_factor_k": res.k, "noise_hz": res.noise_hz,
+            "noise_tau_s": res.noise_tau_s, "dwell_s": res.dwell_s, "baseline_hz": res.baseline_hz,
+            "settle_s": res.settle_s, "polarity": res.polarity, "coil_radius_mm": res.radius_mm,
+            "interrupted": res.log.interrupted, "warnings": res.warnings,
+            "cautions": [_classify.POLARITY_CAUTION, _classify.MIXED_STEEL_CAUTION]}

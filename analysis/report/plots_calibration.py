@@ -1,0 +1,257 @@
+"""Calibration plots: shift-versus-distance curves, the time series with stretches, residuals,
+and the overlay of several runs.
+
+Every function returns the PNG as bytes (the report embeds them) and, given a path, also writes
+it atomically. On the log-log curve plot the marker shape tells the sign: a downward triangle
+is a falling frequency (inductance up), an upward triangle a rising one.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+import os
+
+import matplotlib
+
+matplotlib.use("Agg")  # files only, never a window
+import matplotlib.pyplot as plt  # noqa: E402
+import numpy as np  # noqa: E402
+from matplotlib.ticker import FuncFormatter  # noqa: E402
+
+from coilshift.logger.runfolder.atomic import write_bytes_atomic  # noqa: E402
+
+from coilshift.analysis.calibration.run import CalibrationResult, TargetResult  # noqa: E402
+
+#: at most this many points of a long log are drawn (min/max per bucket keeps the envelope)
+MAX_TRACE_POINTS = 20000
+_COLORS = plt.rcParams["axes.prop_cycle"].by_key()["color"]
+
+
+def _finish(fig, path) -> bytes:
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=110)
+    plt.close(fig)
+    data = buf.getvalue()
+    if path is not None:
+        write_bytes_atomic(path, data)
+    return data
+
+
+def _plain_mm_ticks(ax) -> None:
+    # distances read better as 20, 30, 50 mm than as 2x10^1 on a log axis
+    fmt = FuncFormatter(lambda v, _: f"{v:g}")
+    ax.xaxis.set_major_formatter(fmt)
+    ax.xaxis.set_minor_formatter(FuncFormatter(lambda v, _: f"{v:g}" if f"{v:g}"[0] in "235" else ""))
+    ax.tick_params(axis="x", which="both", labelsize=8)  # one size for 20, 50, 100, 200
+
+
+def _color(i: int) -> str:
+    return _COLORS[i % len(_COLORS)]
+
+
+def _span(res: CalibrationResult) -> tuple[float, float]:
+    d = [p.distance_mm for t in res.targets for p in t.points if p.distance_mm > 0]
+    if not d:
+        return 1.0, 100.0
+    return min(d) / 1.6, max(d) * 1.6
+
+
+def _draw_target(ax, t: TargetResult, color: str, d_grid: np.ndarray, label_prefix: str = "",
+                 coil=None, threshold_hz: float = math.nan, show_power: bool = True) -> None:
+    d = np.array([p.distance_mm for p in t.points])
+    y = np.array([p.shift_hz for p in t.points])
+    e = np.array([p.stderr_hz for p in t.points])
+    pos = d > 0
+    mag = np.abs(y)
+    lo_err = np.minimum(np.nan_to_num(e), mag * 0.999)  # keep error bars above zero on log axes
+    name = f"{label_prefix}{t.target}"
+    for sign, marker, fill in ((-1, "v", color), (1, "^", "white")):
+        sel = pos & (np.sign(y) == sign) & (mag > 0)
+        if sel.any():
+            ax.errorbar(d[sel], mag[sel], yerr=[lo_err[sel], np.nan_to_num(e[sel])], fmt=marker, ms=7,
+                        mfc=fill, mec=color, ecolor=color, capsize=3, lw=1, ls="none")
+    # a curve through points that are all noise says nothing: draw the points only
+    seen = t.classification.n_significant > 0
+    r = t.range
+    has_range = r.range_mm is not None and math.isfinite(threshold_hz)
+    if t.fit is not None and seen:
+        p = t.fit.params
+        # the range goes in the legend, not beside its marker, where close ranges would overlap
+        reach = f"; range {r.range_mm:.0f} mm" if has_range else ""
+        ax.plot(d_grid, np.abs(t.fit.predict(d_grid)), "-", color=color, lw=1.6,
+                label=f"{name}: dipole fit A={p['a_hz']:+.3g} Hz, R={p['radius_mm']:.3g} mm{reach}")
+    else:
+        ax.plot([], [], "v", color=color, label=f"{name} ({'no fit' if t.fit is None else 'no significant shift'})")
+    if t.power_fit is not None and seen and show_power:
+        ax.plot(d_grid, np.abs(t.power_fit.predict(d_grid)), "--", color=color, lw=0.9, alpha=0.7,
+                label=f"{name}: power law p={t.power_fit.params['p']:.2f}")
+    if t.prediction is not None and coil is not None:
+        pred = np.abs(t.prediction.curve(coil, d_grid))
+        ax.plot(d_grid, pred, ":", color=color, lw=1.6, label=f"{name}: predicted ({t.prediction.spec.name})")
+    if has_range:
+        xerr = None
+        if r.ci_mm is not None:
+            xerr = [[max(r.range_mm - r.ci_mm[0], 0)], [max(r.ci_mm[1] - r.range_mm, 0)]]
+        ax.errorbar([r.range_mm], [threshold_hz], xerr=xerr, fmt="D", ms=8, color=color, mec="black",
+                    capsize=4, lw=1.5, zorder=5)
+
+
+def _sign_legend(ax) -> None:
+    ax.plot([], [], "v", color="grey", label="frequency falls (filled)")
+    ax.plot([], [], "^", mfc="white", mec="grey", color="grey", label="frequency rises (open)")
+    ax.plot([], [], "D", color="grey", mec="black", label="detection range (95 % interval)")
+
+
+def plot_curves(res: CalibrationResult, path: str | os.PathLike | None = None) -> bytes:
+    """|shift| against distance on log-log axes: points with errors, fits, threshold, range."""
+    fig, ax = plt.subplots(figsize=(12, 6.2))
+    lo, hi = _span(res)
+    d_grid = np.geomspace(lo, hi, 300)
+    for i, t in enumerate(res.targets):
+        _draw_target(ax, t, _color(i), d_grid, coil=res.coil, threshold_hz=res.threshold_hz)
+    if math.isfinite(res.threshold_hz):
+        ax.axhline(res.threshold_hz, color="black", ls="-.", lw=1,
+                   label=f"threshold {res.threshold_hz:.3g} Hz ({res.threshold_source})")
+    _sign_legend(ax)
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    _plain_mm_ticks(ax)
+    _floor_axis(ax, res)
+    ax.set_xlabel("distance from coil (mm)")
+    ax.set_ylabel("|frequency shift| (Hz)")
+    ax.set_title(f"Shift vs distance: {res.name} (polarity {res.polarity})")
+    ax.grid(True, which="both", alpha=0.3)
+    ax.legend(fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0)
+    fig.tight_layout()
+    return _finish(fig, path)
+
+
+def _floor_axis(ax, res: CalibrationResult) -> None:
+    mags = [abs(p.shift_hz) for t in res.targets for p in t.points if p.shift_hz != 0]
+    mags += [res.threshold_hz] if math.isfinite(res.threshold_hz) else []
+    if mags:
+        ax.set_ylim(min(mags) / 5, max(mags) * 3)
+
+
+def _decimate(t: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    if t.size <= MAX_TRACE_POINTS:
+        return t, y
+    n = MAX_TRACE_POINTS // 2
+    edges = np.linspace(0, t.size, n + 1).astype(int)
+    tt, yy = [], []
+    for a, b in zip(edges[:-1], edges[1:]):
+        seg = y[a:b]
+        if not np.isfinite(seg).any():
+            continue
+        i, j = a + int(np.nanargmin(seg)), a + int(np.nanargmax(seg))
+        for k in sorted((i, j)):
+            tt.append(t[k])
+            yy.append(y[k])
+    return np.array(tt), np.array(yy)
+
+
+def plot_timeseries(res: CalibrationResult, path: str | os.PathLike | None = None) -> bytes:
+    """Shift against time with target stretches shaded and the interpolated baseline drawn."""
+    fig, ax = plt.subplots(figsize=(11, 5))
+    log = res.log
+    t, y = _decimate(log.t_s, log.freq_hz - res.baseline_hz)
+    ax.plot(t, y, "-", color="0.25", lw=0.6, label="tracked frequency - baseline")
+    names = [tr.target for tr in res.targets]
+    for b in res.baselines:
+        ax.axvspan(b.used_start_s, b.used_end_s, color="0.85", alpha=0.5, lw=0)
+    bt = [b.t_mid_s for b in res.baselines]
+    bm = [b.stat.mean - res.baseline_hz for b in res.baselines]
+    ax.plot(bt, bm, "o--", color="black", ms=3, lw=0.8, label="baseline means (interpolated between)")
+    for s in res.steps:
+        c = _color(names.index(s.target)) if s.target in names else "grey"
+        ax.axvspan(s.start_s, s.end_s, color=c, alpha=0.25, lw=0)
+        ax.hlines(s.shift_hz + s.baseline_hz - res.baseline_hz, s.start_s, s.end_s, color=c, lw=2)
+        ax.annotate(f"{s.distance_mm:g}", ((s.start_s + s.end_s) / 2, s.shift_hz + s.baseline_hz - res.baseline_hz),
+                    textcoords="offset points", xytext=(0, 5), ha="center", fontsize=7, color=c)
+    for i, n in enumerate(names):
+        ax.axvspan(0, 0, color=_color(i), alpha=0.25, label=f"{n} (label: distance in mm)")
+    ax.axvspan(0, 0, color="0.85", alpha=0.5, label="baseline stretch (used part)")
+    ax.set_xlabel("time from start of run (s)")
+    ax.set_ylabel(f"shift from {res.baseline_hz:.3f} Hz (Hz)")
+    ax.set_title(f"Calibration run {res.name}: target stretches shaded (settling removed)")
+    ax.grid(True, alpha=0.3)
+    ax.legend(fontsize=8, loc="best")
+    fig.tight_layout()
+    return _finish(fig, path)
+
+
+def plot_residuals(res: CalibrationResult, path: str | os.PathLike | None = None) -> bytes:
+    """Normalised residuals (measured - fit)/stderr of the dipole fits against distance."""
+    fig, ax = plt.subplots(figsize=(9, 4.5))
+    any_fit = False
+    for i, t in enumerate(res.targets):
+        if t.fit is None:
+            continue
+        any_fit = True
+        ax.plot(t.fit.distance_mm, t.fit.normalized_residuals, "o-", color=_color(i), ms=6, lw=0.8,
+                label=f"{t.target}: chi2/dof = {t.fit.chi2_red:.2f} ({t.fit.dof} dof)")
+    for level, ls in ((1, ":"), (3, "--")):
+        ax.axhline(level, color="grey", ls=ls, lw=0.8)
+        ax.axhline(-level, color="grey", ls=ls, lw=0.8)
+    ax.axhline(0, color="black", lw=0.8)
+    ax.set_xscale("log")
+    _plain_mm_ticks(ax)
+    ax.set_xlabel("distance from coil (mm)")
+    ax.set_ylabel("(measured - fit) / stderr")
+    ax.set_title("Dipole-fit residuals (dotted: +-1, dashed: +-3 standard errors)")
+    ax.grid(True, which="both", alpha=0.3)
+    if any_fit:
+        ax.legend(fontsize=8)
+    else:
+        ax.text(0.5, 0.5, "no fitted curve", transform=ax.transAxes, ha="center")
+    fig.tight_layout()
+    return _finish(fig, path)
+
+
+def plot_compare(results: list[CalibrationResult], names: list[str],
+                 path: str | os.PathLike | None = None) -> bytes:
+    """One panel per target: the curves of every run that has it, colours by run."""
+    targets: list[str] = []
+    for r in results:
+        for t in r.targets:
+            if t.target not in targets:
+                targets.append(t.target)
+    ncol = 1  # one target a row, legend to its right
+    nrow = math.ceil(len(targets) / ncol)
+    fig, axes = plt.subplots(nrow, ncol, figsize=(12, 4.2 * nrow + 0.6), squeeze=False)
+    for k, tname in enumerate(targets):
+        ax = axes[k // ncol][k % ncol]
+        lo, hi = 1e9, 0.0
+        for r in results:
+            a, b = _span(r)
+            lo, hi = min(lo, a), max(hi, b)
+        d_grid = np.geomspace(lo, hi, 300)
+        mags = []
+        for i, (name, r) in enumerate(zip(names, results)):
+            t = r.target(tname)
+            if t is None:
+                continue
+            _draw_target(ax, t, _color(i), d_grid, label_prefix=f"{name}: ", coil=r.coil,
+                         threshold_hz=r.threshold_hz, show_power=False)
+            if math.isfinite(r.threshold_hz):
+                ax.axhline(r.threshold_hz, color=_color(i), ls="-.", lw=0.8,
+                           label=f"{name}: threshold {r.threshold_hz:.3g} Hz")
+                mags.append(r.threshold_hz)
+            mags += [abs(p.shift_hz) for p in t.points if p.shift_hz != 0]
+        ax.set_xscale("log")
+        ax.set_yscale("log")
+        _plain_mm_ticks(ax)
+        if mags:
+            ax.set_ylim(min(mags) / 5, max(mags) * 3)
+        ax.set_title(tname)
+        ax.set_xlabel("distance from coil (mm)")
+        ax.set_ylabel("|frequency shift| (Hz)")
+        ax.grid(True, which="both", alpha=0.3)
+        # beside the panel: inside, any corner hides a curve or a threshold line
+        ax.legend(fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0)
+    for k in range(len(targets), nrow * ncol):
+        axes[k // ncol][k % ncol].set_visible(False)
+    fig.suptitle("Runs compared (filled triangle down: frequency falls; open up: rises; diamond: range)")
+    fig.tight_layout(rect=(0, 0, 1, 1 - 0.5 / fig.get_figheight()))
+    return _finish(fig, path)

@@ -1,0 +1,218 @@
+"""The shift log: a run folder with ``log.csv`` (rows) and ``run.json`` (metadata).
+
+``log.csv`` columns (header row first, one frame a row, whole lines only)::
+
+    t_s,utc,freq_hz,shift_hz,amp_dbfs,snr_db,flags
+
+* ``t_s``      seconds from the start of the recording to the frame centre
+* ``utc``      ISO 8601 UTC time of the frame centre (``start_utc`` + ``t_s``)
+* ``freq_hz``  tracked frequency after corrections (empty when no tone)
+* ``shift_hz`` ``freq_hz`` minus the baseline frequency
+* ``amp_dbfs`` tone amplitude in dB re full-scale sine
+* ``snr_db``   tone-to-noise ratio in the frame, dB
+* ``flags``    ``;``-separated words from :mod:`coilshift.logger.runfolder.flags` (empty when clean)
+
+``run.json`` is written before the first row (``"status": "running"``) and replaced
+atomically at the end (``"status": "complete"`` with totals). Rows are appended, flushed
+after every write and fsync'ed about once a second, so a crash loses at most about a
+second and leaves a readable file whose incomplete last line a reader drops.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import os
+import shutil
+import time
+from pathlib import Path
+
+import numpy as np
+
+from coilshift.logger.runfolder import flags as _flags
+from coilshift.logger.runfolder.atomic import write_json_atomic, write_text_atomic
+from coilshift.logger.errors import InputError
+from coilshift.logger.runfolder.frames import FrameTable
+
+FORMAT_NAME = "coilshift-run"
+FORMAT_VERSION = 1
+LOG_NAME = "log.csv"
+META_NAME = "run.json"
+MARKERS_NAME = "markers.csv"
+LOG_COLUMNS = ("t_s", "utc", "freq_hz", "shift_hz", "amp_dbfs", "snr_db", "flags")
+#: bytes set aside while a run is written, so the final run.json fits on a disk that fills up
+RESERVE_BYTES = 64 * 1024
+#: files a run folder may hold that --force is allowed to replace
+RUN_FILES = (LOG_NAME, META_NAME, MARKERS_NAME)
+
+UNITS = {"t_s": "s", "utc": "ISO 8601 UTC", "freq_hz": "Hz", "shift_hz": "Hz",
+         "amp_dbfs": "dB re full-scale sine", "snr_db": "dB", "flags": "words"}
+
+
+def software_version() -> str:
+    try:
+        from importlib.metadata import version
+
+        return version("coilshift")
+    except Exception:  # running from a source tree that is not installed
+        return "unknown"
+
+
+def utc_iso(t: _dt.datetime) -> str:
+    """ISO 8601 with milliseconds and a Z, e.g. ``2026-12-01T18:01:08.123Z``."""
+    t = t.astimezone(_dt.timezone.utc)
+    return t.strftime("%Y-%m-%dT%H:%M:%S.") + f"{t.microsecond // 1000:03d}Z"
+
+
+def prepare_run_dir(run_dir: str | os.PathLike, force: bool = False) -> Path:
+    """Create ``run_dir`` for a new run; refuse an existing non-empty folder unless ``force``.
+
+    With ``force`` only the run's own files (log.csv, run.json, markers.csv) are removed;
+    anything else the user keeps there is left alone.
+    """
+    run_dir = Path(run_dir)
+    if run_dir.exists() and not run_dir.is_dir():
+        raise InputError(f"{run_dir}: exists and is not a folder")
+    if run_dir.is_dir() and any(run_dir.iterdir()):
+        if not force:
+            raise InputError(f"{run_dir}: folder exists and is not empty (use --force to replace its run files)")
+        for name in RUN_FILES:
+            p = run_dir / name
+            if p.is_file():
+                p.unlink()
+            elif p.is_dir():
+                shutil.rmtree(p)
+    try:
+        run_dir.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise InputError(f"{run_dir}: cannot create folder ({exc.strerror})") from None
+    if not os.access(run_dir, os.W_OK):
+        raise InputError(f"{run_dir}: folder is not writable")
+    return run_dir
+
+
+def _fmt(x: float, digits: int) -> str:
+    return "" if not np.isfinite(x) else f"{x:.{digits}f}"
+
+
+class RunWriter:
+    """Append frames to a run folder's log.csv; keep run.json current.
+
+    Parameters
+    ----------
+    run_dir : folder prepared by :func:`prepare_run_dir`
+    meta : metadata for run.json (source, sample_rate_hz, tracker, corrections, baseline, ...);
+        ``start_utc`` is required as an ISO 8601 string.
+    fsync_interval_s : how often appended rows are forced to disk.
+
+    The writer never holds more than the current batch of rows in memory.
+    """
+
+    def __init__(self, run_dir: str | os.PathLike, meta: dict, fsync_interval_s: float = 1.0):
+        self.run_dir = Path(run_dir)
+        self.meta = {"format": FORMAT_NAME, "format_version": FORMAT_VERSION,
+                     "software_version": software_version(), "units": UNITS,
+                     "columns": list(LOG_COLUMNS), "status": "running", **meta}
+        if "start_utc" not in self.meta:
+            raise ValueError("meta needs start_utc")
+        self._start = _dt.datetime.fromisoformat(self.meta["start_utc"].replace("Z", "+00:00"))
+        self.baseline_hz = float(self.meta.get("baseline", {}).get("freq_hz", np.nan))
+        self.fsync_interval_s = fsync_interval_s
+        self.rows_written = 0
+        self._write_error: OSError | None = None
+        self._flag_counts: dict[str, int] = {}
+        write_json_atomic(self.run_dir / META_NAME, self.meta)
+        # room kept for the final run.json: if the disk fills up during the run, deleting this
+        # lets run.json still say how the run ended (the name matches the temp-file clean-ups)
+        self._reserve = self.run_dir / f".{META_NAME}.reserve.tmp"
+        try:
+            self._reserve.write_bytes(b"\0" * RESERVE_BYTES)
+        except OSError:
+            self._reserve.unlink(missing_ok=True)
+        self._fh = open(self.run_dir / LOG_NAME, "x", encoding="utf-8", newline="\n")
+        self._fh.write(",".join(LOG_COLUMNS) + "\n")
+        self._fh.flush()
+        os.fsync(self._fh.fileno())
+        self._last_sync = time.monotonic()
+
+    def set_baseline(self, freq_hz: float, method: str, **details) -> None:
+        """Set (or re-zero) the baseline used for ``shift_hz`` of rows written from now on."""
+        self.baseline_hz = float(freq_hz)
+        self.meta["baseline"] = {"freq_hz": self.baseline_hz, "method": method, **details}
+        write_json_atomic(self.run_dir / META_NAME, self.meta)
+
+    def append(self, frames: FrameTable) -> None:
+        """Write whole rows for ``frames``, flush, and fsync if the interval has passed."""
+        if len(frames) == 0:
+            return
+        lines = []
+        base = self._start
+        for t, f, a, s, fl in zip(frames.t_s, frames.freq_hz, frames.amp_dbfs, frames.snr_db, frames.flags):
+            words = _flags.to_text(int(fl))
+            if words:
+                for w in words.split(";"):
+                    self._flag_counts[w] = self._flag_counts.get(w, 0) + 1
+            stamp = utc_iso(base + _dt.timedelta(seconds=float(t)))
+            lines.append(f"{t:.6f},{stamp},{_fmt(f, 6)},{_fmt(f - self.baseline_hz, 6)},"
+                         f"{_fmt(a, 2)},{_fmt(s, 2)},{words}\n")
+        if self._write_error is not None:
+            # after a failed write the file may end in part of a row: never append behind it
+            raise self._write_error
+        try:
+            self._fh.write("".join(lines))
+            self._fh.flush()
+            self.rows_written += len(lines)
+            now = time.monotonic()
+            if now - self._last_sync >= self.fsync_interval_s:
+                os.fsync(self._fh.fileno())
+                self._last_sync = now
+        except OSError as exc:  # disk full, folder gone, ...: say which file
+            self._write_error = self._named(exc)
+            raise self._write_error from None
+
+    def _named(self, exc: OSError) -> OSError:
+        if exc.filename:
+            return exc
+        return OSError(exc.errno, exc.strerror or str(exc), str(self.run_dir / LOG_NAME))
+
+    def close(self, totals: dict | None = None, status: str = "complete") -> None:
+        """fsync the log and replace run.json with the final status and totals."""
+        if self._fh.closed:
+            return
+        prior = self._write_error  # already raised by append
+        error = None
+        try:
+            self._fh.flush()
+            os.fsync(self._fh.fileno())
+        except OSError as exc:
+            error = error or self._named(exc)
+        finally:
+            try:
+                self._fh.close()  # closes the file even when the final flush fails
+            except OSError as exc:
+                error = error or self._named(exc)
+        failed = error or prior
+        if failed is not None and status == "complete":
+            status = "interrupted"  # rows are missing at the end: the run is not complete
+        self.meta["status"] = status
+        self.meta["totals"] = {"rows": self.rows_written, "flag_counts": self._flag_counts, **(totals or {})}
+        if failed is not None:
+            self.meta["totals"]["write_error"] = f"{failed.filename}: {failed.strerror}"
+        try:
+            self._reserve.unlink(missing_ok=True)  # frees the room kept for this write
+        except OSError:
+            pass
+        # should even this fail, run.json still says "running", which readers take as interrupted
+        write_json_atomic(self.run_dir / META_NAME, self.meta)
+        if error is not None:
+            raise error
+
+    def __enter__(self) -> "RunWriter":
+        return self
+
+    def __exit__(self, exc_type, exc, tb) -> None:
+        self.close(status="complete" if exc_type is None else "interrupted")
+
+
+def write_markers_copy(run_dir: str | os.PathLike, markers_csv_text: str) -> None:
+    """Store the run's markers as markers.csv (atomically)."""
+    write_text_atomic(Path(run_dir) / MARKERS_NAME, markers_csv_text)

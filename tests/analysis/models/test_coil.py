@@ -1,0 +1,254 @@
+"""Coil models: Wheeler against the exact current sheet and Grover's tables, filament sums, wire, Medhurst."""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pytest
+
+from coilshift.analysis.models import inductance as ind
+from coilshift.analysis.models.coil import (CoilDesign, analyse_coil, capacitance_for_frequency_nf, check_design,
+                                     lc_frequency_hz, load_coil, medhurst_capacitance_pf, medhurst_h_factor,
+                                     MEDHURST_TABLE)
+from coilshift.logger.errors import InputError
+
+INCH = 0.0254
+
+
+# --- current sheet -------------------------------------------------------------------------------
+
+@pytest.mark.parametrize("l_over_d, k_table", [
+    (0.01, 0.034960), (0.10, 0.203324), (0.20, 0.319825), (0.25, 0.365432),
+    (0.50, 0.525510), (0.75, 0.623011), (1.00, 0.688423),
+])
+def test_nagaoka_against_grover_table_36(l_over_d, k_table):
+    # Grover, Inductance Calculations, Table 36 [pub], six decimals: half a unit of the last place
+    assert ind.nagaoka_coefficient(l_over_d) == pytest.approx(k_table, abs=6e-7)
+
+
+@pytest.mark.parametrize("l_over_a", [20.0, 50.0, 200.0])
+def test_nagaoka_long_solenoid_expansion(l_over_a):
+    # Long-coil series K = 1 - 8a/(3 pi l) + a^2/(2 l^2) - a^4/(4 l^4) + ... (Grover; from memory):
+    # the truncation error is about the first dropped term a^4/(4 l^4), plus ~1e-11 of rounding in
+    # the elliptic integrals for very long coils
+    x = 1.0 / l_over_a
+    approx = 1.0 - 8.0 * x / (3.0 * math.pi) + x * x / 2.0
+    assert ind.nagaoka_coefficient(l_over_a / 2.0) == pytest.approx(approx, abs=1.05 * x ** 4 / 4 + 1e-11)
+
+
+def test_worked_example_one_inch_coil():
+    # REFERENCES section 5 [derived]: 20 turns, D = 1 in, l = 1 in: 6.9032 uH exact, Wheeler 6.8966 uH
+    exact_uh = ind.current_sheet_h(20, 0.5 * INCH, 1.0 * INCH) * 1e6
+    assert exact_uh == pytest.approx(6.9032, abs=5e-5)
+    assert ind.wheeler_single_layer_uh(20, 0.5, 1.0) == pytest.approx(6.8966, abs=5e-5)
+
+
+@pytest.mark.parametrize("l_over_r", [0.8, 1.0, 1.5, 2.0, 4.0, 10.0, 30.0, 100.0])
+def test_wheeler_single_layer_within_one_percent_where_claimed(l_over_r):
+    # Wheeler 1928: about 1 % for l > 0.8 r, checked against the exact current sheet (Lorenz/Nagaoka)
+    r_in = 1.0
+    wheeler = ind.wheeler_single_layer_uh(50, r_in, l_over_r * r_in)
+    exact = ind.current_sheet_h(50, r_in * INCH, l_over_r * r_in * INCH) * 1e6
+    assert abs(wheeler / exact - 1.0) < 0.01
+
+
+def test_wheeler_single_layer_leaves_its_range_for_short_coils():
+    # Outside the stated range the error does exceed 1 % (so the range check above means something)
+    wheeler = ind.wheeler_single_layer_uh(50, 1.0, 0.1)
+    exact = ind.current_sheet_h(50, INCH, 0.1 * INCH) * 1e6
+    assert abs(wheeler / exact - 1.0) > 0.01
+
+
+@pytest.mark.parametrize("l_over_d", [0.05, 0.5, 1.0, 3.0])
+def test_current_sheet_against_maxwell_filament_sum(l_over_d):
+    # Independent route: Maxwell's mutual inductance of coaxial circles summed over thin strips.
+    # The strips' self terms use the GMD of a line, e^{-3/2} b = 0.2231 b (Maxwell), so only the
+    # discretisation differs: 3000 strips agree to well under 0.1 %.
+    a = 0.02
+    exact = ind.current_sheet_h(40, a, l_over_d * 2 * a)
+    numeric = ind.uniform_section_h(40, a, a, l_over_d * 2 * a, cells=3000)
+    assert numeric == pytest.approx(exact, rel=1e-3)
+
+
+def test_maxwell_mutual_inductance_far_field():
+    # Two coaxial loops far apart: M -> mu0 pi a^2 b^2 / (2 d^3) (two dipoles), a textbook limit
+    a, b, d = 0.01, 0.02, 2.0
+    assert ind.mutual_coaxial_circles_h(a, b, d) == pytest.approx(
+        ind.MU0_H_PER_M * math.pi * a * a * b * b / (2 * d ** 3), rel=1e-3)
+
+
+def test_round_wire_rings_match_rosa_correction():
+    # Rosa (1907): L = L_sheet - mu0 a N (A + B), A = 5/4 - ln(2p/d) with pitch p and bare diameter d,
+    # B from Rosa's table (N = 20: B = 0.2974, from memory [unconfirmed]). Our rings sum includes the
+    # same physics from first principles; the correction is 1.2 % of L here, matched to 0.1 % of L.
+    n, a, p, d = 20, 0.5 * INCH, INCH / 20, 0.7e-3
+    sheet = ind.current_sheet_h(n, a, n * p)
+    rosa = sheet - ind.MU0_H_PER_M * a * n * (1.25 - math.log(2 * p / d) + 0.2974)
+    rings = ind.round_wire_rings_h(n, a - 0.4e-3, n * p, 0.0, 0.8e-3, d)
+    assert rings == pytest.approx(rosa, rel=1e-3)
+    assert sheet / rings - 1 > 0.01
+
+
+# --- thick windings ------------------------------------------------------------------------------
+
+@pytest.mark.parametrize("l_over_r, c_over_r", [(2 / 3, 0.6), (1.0, 0.6), (0.5, 0.4), (0.9, 0.8)])
+def test_wheeler_multilayer_when_terms_comparable(l_over_r, c_over_r):
+    # Wheeler 1928: about 1 % when 6r, 9l, 10c are comparable (here within a factor 1.5), against a
+    # uniform-current-density Maxwell filament sum
+    r = 0.03
+    terms = (6 * r, 9 * l_over_r * r, 10 * c_over_r * r)
+    assert max(terms) <= 1.5 * min(terms)
+    numeric = ind.uniform_section_h(100, r - c_over_r * r / 2, r + c_over_r * r / 2, l_over_r * r) * 1e6
+    wheeler = ind.wheeler_multilayer_uh(100, r / INCH, l_over_r * r / INCH, c_over_r * r / INCH)
+    assert wheeler == pytest.approx(numeric, rel=0.01)
+
+
+def _annulus_h(turns, r, c, n=800):
+    # A flat current sheet (annulus) as n thin rings: Maxwell mutual terms, line-GMD self terms
+    dr = c / n
+    radii = r - c / 2 + (np.arange(n) + 0.5) * dr
+    return ind.grid_loops_h(radii, 1.0, 1, ind.ring_self_h(radii, ind.rectangle_gmd_m(dr, 0.0))) * (turns / n) ** 2
+
+
+@pytest.mark.parametrize("c_over_r", [0.3, 0.5, 0.8, 1.1, 1.4])
+def test_wheeler_flat_spiral_in_the_range_used(c_over_r):
+    # Wheeler 1928 states about 1 % for c > 0.2 r; against a thin annulus we find 2 % in 0.3..1.4 r,
+    # the range analyse_coil uses it in (docs/models.md)
+    r = 0.02
+    wheeler = ind.wheeler_flat_spiral_uh(30, r / INCH, c_over_r * r / INCH)
+    assert wheeler == pytest.approx(_annulus_h(30, r, c_over_r * r) * 1e6, rel=0.02)
+
+
+@pytest.mark.parametrize("section_over_r", [0.05, 0.1, 0.2])
+def test_thin_ring_formula_against_filament_sum(section_over_r):
+    # Maxwell's GMD ring formula mu0 N^2 a (ln(8a/g) - 2): neglected terms of order (c/a)^2, so
+    # under 1 % for sections up to 0.2 a
+    r = 0.1
+    s = section_over_r * r
+    assert ind.thin_ring_coil_h(10, r, s, s) == pytest.approx(ind.uniform_section_h(10, r - s / 2, r + s / 2, s),
+                                                             rel=0.01)
+
+
+def test_round_wire_loop_textbook_formula():
+    # A single round-wire loop: L = mu0 a (ln(8a/rho) - 7/4) (uniform current), e.g. a = 0.1 m,
+    # rho = 1 mm -> 1.2566e-6 * 0.1 * (ln 800 - 1.75) = 0.6201 uH [derived]
+    assert ind.round_wire_rings_h(1, 0.1 - 1e-3, 2e-3, 0.0, 2e-3, 2e-3) * 1e6 == pytest.approx(0.62014, rel=1e-4)
+
+
+# --- the analysis ------------------------------------------------------------------------------
+
+def test_analyse_single_layer_reports_both_values():
+    rep = analyse_coil(CoilDesign(20, 25.4 - 0.87, 25.4, awg=20))
+    assert rep.method.startswith("Wheeler 1928 single-layer")
+    assert rep.exact_inductance_uh is not None and rep.nagaoka_k is not None
+    assert rep.inductance_uh == pytest.approx(rep.exact_inductance_uh, rel=0.01)
+    assert "round-wire" in rep.accuracy_note
+
+
+def test_short_single_layer_uses_current_sheet():
+    rep = analyse_coil(CoilDesign(10, 100, 10, awg=20))
+    assert rep.in_stated_range is False
+    assert rep.inductance_uh == rep.exact_inductance_uh
+
+
+def test_bundle_loop_uses_thin_ring():
+    rep = analyse_coil(CoilDesign(20, 200, 5, depth_mm=5, awg=22))
+    assert rep.method.startswith("thin ring")
+    assert rep.inductance_uh == pytest.approx(rep.numeric_inductance_uh, rel=0.01)
+
+
+@pytest.mark.parametrize("design", [
+    CoilDesign(200, 50, 90, awg=26),                     # single layer on a 5 cm form
+    CoilDesign(200, 50, 10, depth_mm=5, awg=26),         # a 10 x 5 mm multilayer on a 5 cm form
+])
+def test_common_practice_200_turns_26_awg_on_5_cm(design):
+    # Common practice (no published source): about 200 turns of 26 AWG on a ~5 cm form is 4-5 ohm
+    assert 4.0 <= analyse_coil(design).resistance_ohm <= 5.0
+
+
+def test_wire_length_is_turns_times_mean_circumference():
+    d = CoilDesign(100, 30, 60, awg=24)
+    rep = analyse_coil(d)
+    mean_r = 15 + rep.wire_outer_diameter_mm / 2
+    per_turn = math.hypot(2 * math.pi * mean_r, 0.6)   # the helix step is the pitch, 0.6 mm
+    assert rep.wire_length_m == pytest.approx(100 * per_turn / 1000, rel=1e-12)
+    # resistance = length x (IEC 60028 resistivity / area), 20 degC
+    assert rep.resistance_ohm == pytest.approx(
+        rep.wire_length_m * 0.017241e-6 / (math.pi * (rep.wire_bare_diameter_mm * 1e-3) ** 2 / 4), rel=1e-12)
+    hot = analyse_coil(CoilDesign(100, 30, 60, awg=24, temp_c=60))
+    assert hot.resistance_ohm / rep.resistance_ohm == pytest.approx(1 + 0.00393 * 40, rel=1e-12)
+
+
+def test_medhurst_fit_against_table():
+    # Medhurst 1947 (Wireless Engineer 24) table of H vs l/D, as quoted; the fitted expression used
+    # outside 1..5 must stay within its usual +-10 % of the table
+    for x, h in MEDHURST_TABLE:
+        assert 0.1126 * x + 0.08 + 0.27 / math.sqrt(x) == pytest.approx(h, rel=0.10)
+        assert medhurst_h_factor(x) == h
+
+
+def test_medhurst_capacitance_and_srf():
+    # Medhurst: C = H D[cm]; l = D = 10 cm -> 0.46 * 10 = 4.6 pF
+    assert medhurst_capacitance_pf(100.0, 100.0) == pytest.approx(4.6)
+    rep = analyse_coil(CoilDesign(50, 50, 60, awg=26))
+    c = rep.self_capacitance_pf * 1e-12
+    assert rep.srf_hz == pytest.approx(1 / (2 * math.pi * math.sqrt(rep.inductance_uh * 1e-6 * c)), rel=1e-12)
+
+
+def test_lc_frequency():
+    # f = 1 / (2 pi sqrt(L C)): 100 uH with 100 nF -> 50 329.2 Hz [derived by hand]
+    assert lc_frequency_hz(100e-6, 100e-9) == pytest.approx(50329.2, abs=0.1)
+    assert capacitance_for_frequency_nf(100e-6, 50329.2) == pytest.approx(100.0, rel=1e-5)
+    rep = analyse_coil(CoilDesign(200, 50, 10, depth_mm=5, awg=26, cap_nf=100))
+    assert rep.lc_freq_hz == pytest.approx(lc_frequency_hz(rep.inductance_uh * 1e-6, 100e-9), rel=1e-12)
+
+
+# --- impossible geometry and files ---------------------------------------------------------------
+
+@pytest.mark.parametrize("design, words", [
+    (CoilDesign(-5, 50, 10), "turns"),
+    (CoilDesign(0.5, 50, 10), "turns"),
+    (CoilDesign(10, 0, 10), "inner_diameter_mm"),
+    (CoilDesign(10, 50, 0), "length_mm"),
+    (CoilDesign(10, 50, 10, depth_mm=-1), "depth_mm"),
+    (CoilDesign(10, 50, 10, depth_mm=0.1, awg=26), "less than one wire"),
+    (CoilDesign(100, 50, 10, awg=26), "one layer"),
+    (CoilDesign(2000, 50, 10, depth_mm=2, awg=26), "section"),
+    (CoilDesign(10, 50, 10, awg=26, wire_diameter_mm=0.4), "not both"),
+    (CoilDesign(10, 50, 10, cap_nf=0), "cap_nf"),
+    (CoilDesign(10, float("nan"), 10), "inner_diameter_mm"),
+])
+def test_impossible_geometry_refused(design, words):
+    with pytest.raises(InputError, match=words):
+        check_design(design)
+
+
+def test_load_coil_round_trip(tmp_path):
+    path = tmp_path / "c.json"
+    path.write_text(json.dumps({"name": "probe", "turns": 200, "inner_diameter_mm": 50, "length_mm": 10,
+                                "depth_mm": 5, "awg": 26, "cap_nf": 47}))
+    d = load_coil(path)
+    assert d == CoilDesign(200, 50, 10, depth_mm=5, awg=26, cap_nf=47, name="probe")
+
+
+@pytest.mark.parametrize("content, words", [
+    ('{"turns": 10, "inner_diameter_mm": 50, "length_mm": 10, "colour": "red"}', "unknown key"),
+    ('{"turns": 10, "inner_diameter_mm": 50}', "missing"),
+    ('{"turns": "ten", "inner_diameter_mm": 50, "length_mm": 10}', "number"),
+    ('{"turns": 10, "inner_diameter_mm": 50, "length_mm": -3}', "length_mm"),
+    ('[1, 2]', "JSON object"),
+    ('{"turns": 10,', "not valid JSON"),
+])
+def test_load_coil_refuses_bad_files(tmp_path, content, words):
+    path = tmp_path / "bad.json"
+    path.write_text(content)
+    with pytest.raises(InputError, match=words) as exc:
+        load_coil(path)
+    assert str(path) in str(exc.value)
+
+
+def test_load_coil_missing_file(tmp_path):
+    with pytest.raises(InputError, match="no such coil file"):
+        load_coil(tmp_path / "none.json")

@@ -1,0 +1,88 @@
+"""555 astable formulas against the datasheet's own constants and example, and the part pickers."""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+
+from coilshift.analysis.models import timer555 as t5
+from coilshift.logger.errors import InputError
+
+# The datasheets round ln 2 to 0.693 and 1/ln 2 to 1.44: their relative rounding bounds how
+# closely the exact-ln2 results can match numbers recomputed with the printed constants.
+ROUND_0693 = abs(0.693 / math.log(2) - 1)       # 1.6e-4
+ROUND_144 = abs(1.44 * math.log(2) - 1)         # 1.9e-3
+
+
+def test_datasheet_example_two_resistor():
+    # NE555 datasheet astable example: RA = 3.9 kohm, RB = 3 kohm, C = 0.01 uF (component values
+    # recalled from memory [unconfirmed]); recomputed with the published formulas
+    # t_H = 0.693 (RA + RB) C = 47.8 us, t_L = 0.693 RB C = 20.8 us, f = 1.44 / ((RA + 2 RB) C) = 14.5 kHz
+    t = t5.astable_two_resistor(3900, 3000, 10)
+    assert t.t_high_s == pytest.approx(0.693 * 6900 * 1e-8, rel=ROUND_0693 * 1.01)
+    assert t.t_low_s == pytest.approx(0.693 * 3000 * 1e-8, rel=ROUND_0693 * 1.01)
+    assert t.freq_hz == pytest.approx(1.44 / (9900 * 1e-8), rel=ROUND_144 * 1.01)
+    assert t.duty == pytest.approx(6900 / 9900, rel=1e-12)
+
+
+@pytest.mark.parametrize("r1, r2, c_nf", [(1e3, 10e3, 100), (47e3, 4.7e3, 1), (10e3, 220e3, 2.2)])
+def test_two_resistor_against_published_formula(r1, r2, c_nf):
+    # NE555 datasheets: f = 1.44 / ((R1 + 2 R2) C)
+    assert t5.astable_two_resistor(r1, r2, c_nf).freq_hz == pytest.approx(
+        1.44 / ((r1 + 2 * r2) * c_nf * 1e-9), rel=ROUND_144 * 1.01)
+
+
+@pytest.mark.parametrize("r, c_nf", [(10e3, 10), (4.7e3, 100), (1e6, 1)])
+def test_one_resistor_against_application_note(r, c_nf):
+    # CMOS 555 application notes: f = 1 / (1.386 R C), 50 % duty (1.386 rounds 2 ln 2 by 2e-4)
+    t = t5.astable_one_resistor(r, c_nf)
+    assert t.freq_hz == pytest.approx(1 / (1.386 * r * c_nf * 1e-9), rel=2.2e-4)
+    assert t.duty == 0.5
+
+
+@pytest.mark.parametrize("freq_hz, cap_nf, duty", [(10e3, 10, 0.6), (1e3, 100, 0.9), (50e3, 1, 0.55)])
+def test_design_inverts_the_formula(freq_hz, cap_nf, duty):
+    t = t5.design_two_resistor(freq_hz, cap_nf, duty, series=None)
+    assert t.freq_hz == pytest.approx(freq_hz, rel=1e-12)
+    assert t.duty == pytest.approx(duty, rel=1e-12)
+    one = t5.design_one_resistor(freq_hz, cap_nf, series=None)
+    assert one.freq_hz == pytest.approx(freq_hz, rel=1e-12)
+
+
+def test_rounded_design_stays_close():
+    # With E24 parts (about 10 % apart) the best pair lands within a few per cent of the target
+    t = t5.design_two_resistor(10e3, 15, 0.6, "E24")
+    assert t.r1_ohm in {m * 1e3 for m in t5.E_SERIES["E24"]} | {m * 1e4 for m in t5.E_SERIES["E24"]}
+    assert abs(t.freq_hz / 10e3 - 1) < 0.02
+
+
+@pytest.mark.parametrize("value, series, expected", [
+    (4600, "E12", 4700), (1.04e3, "E24", 1.0e3), (1.06e3, "E24", 1.1e3), (9.6e3, "E12", 10e3), (2.0, "E6", 2.2),
+])
+def test_nearest_standard_values(value, series, expected):
+    # IEC 60063 E6/E12/E24 series
+    assert t5.nearest_standard(value, series) == pytest.approx(expected)
+
+
+def test_e_series_sizes():
+    # IEC 60063: the En series has n values per decade
+    for name, values in t5.E_SERIES.items():
+        assert len(values) == int(name[1:])
+
+
+@pytest.mark.parametrize("call", [
+    lambda: t5.design_two_resistor(10e3, 10, 0.5),
+    lambda: t5.design_two_resistor(10e3, 10, 1.0),
+    lambda: t5.astable_two_resistor(-1, 1e3, 10),
+    lambda: t5.astable_one_resistor(1e3, 0),
+    lambda: t5.nearest_standard(100, "E7"),
+])
+def test_bad_inputs(call):
+    with pytest.raises(InputError):
+        call()
+
+
+def test_resistor_warnings():
+    assert t5.resistor_warnings(t5.astable_two_resistor(100, 2e6, 1))
+    assert not t5.resistor_warnings(t5.astable_two_resistor(10e3, 10e3, 1))

@@ -1,0 +1,103 @@
+"""Reading logs back: run folders, bare CSV exports, interrupted files, bad files."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from hypothesis.extra.numpy import arrays
+
+from coilshift.logger.runfolder.reader import read_log
+from coilshift.logger.runfolder import flags
+from coilshift.logger.errors import InputError
+from coilshift.logger.runfolder.frames import FrameTable
+from coilshift.logger.runfolder.writer import RunWriter, prepare_run_dir
+
+START = "2026-03-01T12:00:00.000Z"
+
+
+def _write(run_dir, frames, baseline=1000.0):
+    run = prepare_run_dir(run_dir)
+    with RunWriter(run, {"start_utc": START, "baseline": {"freq_hz": baseline, "method": "test"}}) as w:
+        w.append(frames)
+    return run
+
+
+freqs = st.floats(1.0, 1e6, allow_nan=False) | st.just(float("nan"))
+
+
+@settings(max_examples=40, deadline=None)
+@given(data=st.data())
+def test_any_valid_log_reads_back_equal(tmp_path_factory, data):
+    n = data.draw(st.integers(1, 40))
+    steps = data.draw(arrays(float, n, elements=st.floats(1e-3, 10.0)))
+    t = np.cumsum(steps)
+    f = data.draw(arrays(float, n, elements=freqs))
+    a = data.draw(arrays(float, n, elements=st.floats(-150, 0)))
+    s = data.draw(arrays(float, n, elements=st.floats(-20, 120)))
+    fl = data.draw(arrays(np.int64, n, elements=st.integers(0, 127)))
+    run = _write(tmp_path_factory.mktemp("r") / "run", FrameTable(t, f, a, s, fl))
+    log = read_log(run)
+    assert not log.interrupted
+    # the file keeps 6 decimals for t_s and freq_hz, 2 for amp and SNR
+    np.testing.assert_allclose(log.t_s, t, atol=5e-7, rtol=0)
+    np.testing.assert_allclose(log.freq_hz, f, atol=5e-7, rtol=0, equal_nan=True)
+    np.testing.assert_allclose(log.table["amp_dbfs"], a, atol=5e-3)
+    np.testing.assert_allclose(log.table["snr_db"], s, atol=5e-3)
+    np.testing.assert_array_equal(log.table["flags"].to_numpy(), fl)
+
+
+def test_foreign_csv_with_only_time_and_frequency(tmp_path):
+    p = tmp_path / "counter.csv"
+    p.write_text("t_s,freq_hz,comment\n0,1000.5,a\n1,1000.7,b\n2,1000.6,c\n")
+    log = read_log(p)
+    assert log.meta == {} and log.markers == []
+    np.testing.assert_allclose(log.freq_hz, [1000.5, 1000.7, 1000.6])
+    assert log.baseline_hz == pytest.approx(1000.6)  # median of the first 2 s
+
+
+def test_incomplete_last_line_dropped_and_reported(tmp_path):
+    run = _write(tmp_path / "run", FrameTable([0.1, 0.2, 0.3], [1000, 1001, 1002], [-6] * 3, [40] * 3))
+    with open(run / "log.csv", "a") as fh:
+        fh.write("0.4,2026-03-01T12:00:00.4")
+    log = read_log(run)
+    assert log.interrupted and len(log.table) == 3
+
+
+def test_usable_mask_excludes_gaps_and_no_tone(tmp_path):
+    fl = [0, flags.GAP, flags.NO_TONE, flags.CLIPPED]
+    run = _write(tmp_path / "run", FrameTable([0.1, 0.2, 0.3, 0.4], [1000, 1001, np.nan, 1003], [-6] * 4, [40] * 4, fl))
+    assert read_log(run).usable().tolist() == [True, False, False, True]
+
+
+@pytest.mark.parametrize("content, why", [
+    ("", "empty file"),
+    ("time,volts\n0,1\n", "no t_s or freq_hz column"),
+    ("t_s,amp\n0,1\n", "no freq_hz column"),
+    ("t_s,freq_hz\n", "no rows"),
+    ("t_s,freq_hz\n0,1000\n1,abc\n", "non-numeric"),
+    ("t_s,freq_hz\n0,1000\n0,1001\n", "does not increase"),
+    ("t_s,freq_hz\n1,1000\n0,1001\n", "does not increase"),
+    ("t_s,freq_hz\n0,1000\n1,inf\n", "infinite"),
+])
+def test_bad_logs_give_one_line(tmp_path, content, why):
+    p = tmp_path / "log.csv"
+    p.write_text(content)
+    with pytest.raises(InputError) as exc:
+        read_log(p)
+    assert why in str(exc.value) and "\n" not in str(exc.value)
+
+
+def test_missing_path_and_folder_without_log(tmp_path):
+    with pytest.raises(InputError, match="no such file"):
+        read_log(tmp_path / "nothing")
+    with pytest.raises(InputError, match="not a run folder"):
+        read_log(tmp_path)
+
+
+def test_reader_never_modifies_the_run(tmp_path):
+    run = _write(tmp_path / "run", FrameTable([0.1, 0.2], [1000, 1001], [-6] * 2, [40] * 2))
+    before = {p.name: p.read_bytes() for p in run.iterdir()}
+    read_log(run)
+    assert {p.name: p.read_bytes() for p in run.iterdir()} == before
