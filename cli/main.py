@@ -46,7 +46,9 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return int(args.func(args) or 0)
     except InputError as exc:
-        print(f"{PROG}: error: {exc}", file=sys.stderr)
+        from coilshift.cli.options import option_for
+
+        print(f"{PROG}: error: {exc.render(option_for)}", file=sys.stderr)
         return 2
     except BrokenPipeError:
         # the reader went away (e.g. `coilshift ... | head`): nothing to say, stop quietly
