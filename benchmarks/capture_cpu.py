@@ -32,7 +32,7 @@ import time
 from pathlib import Path
 
 from coilshift.logger.capture.engine import CaptureEngine
-from coilshift.logger.runfolder.writer import prepare_run_dir
+from coilshift.logger.runfolder.folders import prepare_run_dir
 from coilshift.logger.sources.soundcard import SoundcardSource
 from coilshift.logger.tracking.tracker import TrackerSettings
 

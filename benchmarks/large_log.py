@@ -52,7 +52,7 @@ log = read_log(sys.argv[1], columns=("t_s", "freq_hz", "flags"))
 t1 = time.perf_counter()
 out = {"rows": len(log.table), "read_s": t1 - t0}
 try:
-    from coilshift.analysis.stability.analyse import noise_at_tau_hz
+    from coilshift.analysis.stability.noise import noise_at_tau_hz
     ok = log.usable()
     out["adev_hz_at_1s"] = float(noise_at_tau_hz(log.t_s[ok], log.freq_hz[ok], 1.0))
     out["adev_hz_at_10s"] = float(noise_at_tau_hz(log.t_s[ok], log.freq_hz[ok], 10.0))

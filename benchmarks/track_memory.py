@@ -44,7 +44,7 @@ CHILD = PEAK + r"""
 import json, sys, time
 from coilshift.logger.pipeline.corrections import Corrections
 from coilshift.logger.pipeline.batch import track_source
-from coilshift.logger.sources.recorded import open_source
+from coilshift.logger.sources import open_source
 from coilshift.logger.tracking.tracker import TrackerSettings
 t0 = time.perf_counter()
 src = open_source(sys.argv[1])
@@ -59,7 +59,8 @@ print(json.dumps({"open_s": t1 - t0, "track_s": t2 - t1, "frames": s["frames"],
 IMPORTS_ONLY = PEAK + r"""
 import json
 import numpy, pandas, soundfile
-import coilshift.logger.pipeline.batch, coilshift.logger.tracking.tracker, coilshift.logger.sources.recorded
+import coilshift.logger.pipeline.batch, coilshift.logger.tracking.tracker
+import coilshift.logger.sources.audiofile, coilshift.logger.sources.scopecsv
 print(json.dumps({"peak_rss_mb": peak_mb()}))
 """
 

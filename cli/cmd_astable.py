@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from coilshift.cli.options import add_cap_option, add_freq_option, add_json_option
+
 ORDER = 62
 
 
@@ -16,12 +18,12 @@ def register(subparsers) -> None:
     p.add_argument("--r1-ohm", type=float, metavar="R", help="two-resistor circuit: supply to discharge")
     p.add_argument("--r2-ohm", type=float, metavar="R", help="two-resistor circuit: discharge to C")
     p.add_argument("--r-ohm", type=float, metavar="R", help="one-resistor circuit: output to C")
-    p.add_argument("--cap-nf", type=float, metavar="C", help="timing capacitor, nF")
-    p.add_argument("--freq-hz", type=float, metavar="F", help="wanted frequency: suggest parts")
+    add_cap_option(p, "timing capacitor, nF")
+    add_freq_option(p, "wanted frequency: suggest parts")
     p.add_argument("--duty", type=float, default=0.6, help="wanted duty cycle, two-resistor circuit (default 0.6)")
     p.add_argument("--series", default="E24", choices=("E6", "E12", "E24", "none"),
                    help="round resistors to this IEC 60063 series (default E24)")
-    p.add_argument("--json", action="store_true", help="print one JSON object")
+    add_json_option(p, "print one JSON object")
     p.set_defaults(func=run)
 
 

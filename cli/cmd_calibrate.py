@@ -4,7 +4,11 @@ from __future__ import annotations
 
 import argparse
 import sys
-import textwrap
+
+from coilshift.cli.cautions import WIRING_CAUTION
+from coilshift.cli.options import (add_analysis_options, add_force_option, add_json_option, add_live_input_options,
+                                   add_run_folder_option, add_settle_option, add_synthetic_option, add_target_option,
+                                   add_tracking_options)
 
 ORDER = 25
 
@@ -12,9 +16,6 @@ HELP = "guided calibration: prompts you through target positions and baselines w
 
 
 def register(subparsers) -> None:
-    from coilshift.cli.cmd_analyze import add_analysis_options
-    from coilshift.cli.cmd_capture import WIRING_CAUTION, add_tracking_options
-
     p = subparsers.add_parser(
         "calibrate", help=HELP,
         description="Capture a calibration run live: a first target-free baseline, then for every target and "
@@ -22,32 +23,27 @@ def register(subparsers) -> None:
                     "time, you remove it and press Enter, and a baseline is recorded; so every position has a "
                     "baseline before and after it. markers.csv is written as you go. The run is analysed at "
                     "the end (as 'coilshift analyze' would). " + WIRING_CAUTION)
-    p.add_argument("-o", "--out", required=True, metavar="RUN_DIR", help="run folder to create (new or empty)")
-    p.add_argument("--force", action="store_true", help="replace the run files in an existing folder "
-                                                        "(and allow a non-empty --report folder)")
+    add_run_folder_option(p)
+    add_force_option(p, "replace the run files in an existing folder (and allow a non-empty --report folder)")
     s = p.add_argument_group("session")
-    s.add_argument("--target", action="append", required=True, metavar="NAME",
-                   help="a target to calibrate (repeat for several), e.g. --target 'steel washer'")
+    add_target_option(s, "a target to calibrate (repeat for several), e.g. --target 'steel washer'",
+                      metavar="NAME", action="append", required=True)
     s.add_argument("--distances", required=True, metavar="LIST",
                    help="distances from the coil face, comma-separated, e.g. 10,20,40,80")
     s.add_argument("--unit", choices=("mm", "cm", "in"), default="mm", help="unit of --distances (default mm)")
     s.add_argument("--dwell", type=float, default=10.0, metavar="S",
                    help="seconds recorded per stretch (default 10; the first baseline lasts 2.5 times as long)")
-    s.add_argument("--settle", type=float, default=2.0, metavar="S",
-                   help="seconds waited after each move before recording (default 2)")
+    add_settle_option(s, "seconds waited after each move before recording (default 2)", metavar="S", default=2.0)
     s.add_argument("--repeats", type=int, default=1, metavar="N", help="run the whole sequence N times (default 1)")
-    src = p.add_argument_group("input")
-    src.add_argument("--device", help="input device: index or part of its name (see 'coilshift devices')")
-    src.add_argument("--rate", type=float, metavar="HZ", help="sample rate (default: the device's default rate)")
-    src.add_argument("--channel", type=int, default=0, metavar="C", help="input channel, from 0 (default 0)")
-    src.add_argument("--synthetic", metavar="SPEC", help=argparse.SUPPRESS)  # paced test tone, as in capture
+    src = add_live_input_options(p, device_help="input device: index or part of its name (see 'coilshift devices')",
+                                 channel_help="input channel, from 0 (default 0)")
+    add_synthetic_option(src)  # paced test tone, as in capture
     add_tracking_options(p)
     add_analysis_options(p, settle=False)
     out = p.add_argument_group("output")
     out.add_argument("--report", metavar="OUT", dest="report_dir",
                      help="also write the analysis (tables, plots, report.html) to this new folder")
-    out.add_argument("--json", action="store_true", help="print the analysis as one JSON object (prompts go "
-                                                         "to stderr)")
+    add_json_option(out, "print the analysis as one JSON object (prompts go to stderr)")
     p.set_defaults(func=run)
 
 
@@ -68,14 +64,16 @@ def run(args) -> int:
     import math
     from pathlib import Path
 
-    from coilshift.cli.cmd_analyze import analysis_kwargs, report_results
-    from coilshift.cli.cmd_capture import (WIRING_CAUTION, _synthetic_source, check_tracking_options,
-                                          tracking_from_args)
+    from coilshift.cli.analysis_args import analysis_kwargs, report_results
+    from coilshift.cli.cautions import show_caution
+    from coilshift.cli.inputs import live_source
+    from coilshift.cli.tracking_args import check_tracking_options, tracking_from_args
     from coilshift.logger.capture.engine import CaptureEngine
     from coilshift.logger.errors import InputError
     from coilshift.logger.capture.guide import CalibrationGuide, parse_distances, plan_session
     from coilshift.logger.runfolder.markers import markers_to_csv
-    from coilshift.logger.runfolder.writer import prepare_run_dir, write_markers_copy
+    from coilshift.logger.runfolder.folders import prepare_run_dir
+    from coilshift.logger.runfolder.writer import write_markers_copy
 
     # every check that can fail does so before the device is opened or a folder created
     check_tracking_options(args)
@@ -91,14 +89,9 @@ def run(args) -> int:
         if p.exists() and (not p.is_dir() or (any(p.iterdir()) and not args.force)):
             prepare_run_dir(p, False)  # raises the usual one-line refusal and changes nothing
     talk = sys.stderr if args.json else sys.stdout
-    if args.synthetic:
-        source = _synthetic_source(args.synthetic, args.rate, None)
-    else:
-        from coilshift.logger.sources.soundcard import SoundcardSource
-
-        source = SoundcardSource(args.device, args.rate, args.channel)
+    source = live_source(args, None)
     settings, corr = tracking_from_args(args, source.sample_rate_hz)
-    print(textwrap.fill(WIRING_CAUTION, width=78) + "\n", file=sys.stderr)
+    show_caution(sys.stderr)
     run_dir = prepare_run_dir(args.out, args.force)
     session = {"targets": list(args.target),
                "distances_mm": distances, "unit": args.unit, "dwell_s": args.dwell, "settle_s": args.settle,

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from coilshift.cli.options import add_channel_option, add_frame_options, add_json_option, add_quiet_option
+
 ORDER = 35
 
 
@@ -18,12 +20,11 @@ def register(subparsers) -> None:
     p.add_argument("input", metavar="INPUT", help="recording of the reference tone (audio file or scope CSV)")
     p.add_argument("--reference-hz", type=float, required=True, metavar="HZ",
                    help="the reference tone's true frequency")
-    p.add_argument("--channel", type=int, default=0, metavar="C", help="channel to use, numbered from 0")
-    p.add_argument("--frame-ms", type=float, default=200.0,
-                   help="analysis frame in ms (default 200: long frames suit a steady tone)")
-    p.add_argument("--hop-ms", type=float, default=100.0, help="time between frames in ms (default 100)")
-    p.add_argument("--json", action="store_true", help="print the result as one JSON object on stdout")
-    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    add_channel_option(p, "channel to use, numbered from 0")
+    add_frame_options(p, 200.0, "analysis frame in ms (default 200: long frames suit a steady tone)",
+                      100.0, "time between frames in ms (default 100)")
+    add_json_option(p, "print the result as one JSON object on stdout")
+    add_quiet_option(p, "no progress bar")
     p.set_defaults(func=run)
 
 
@@ -32,7 +33,7 @@ def run(args) -> int:
     from coilshift.logger.errors import InputError
     from coilshift.logger.pipeline.batch import measure_clock
     from coilshift.logger.progress import make_progress
-    from coilshift.logger.sources.recorded import open_source
+    from coilshift.logger.sources import open_source
     from coilshift.logger.tracking.tracker import TrackerSettings
 
     import math

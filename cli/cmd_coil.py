@@ -2,56 +2,9 @@
 
 from __future__ import annotations
 
+from coilshift.cli.options import add_coil_arguments, add_json_option
+
 ORDER = 60
-
-# option dest -> CoilDesign field
-_COIL_OPTIONS = ("turns", "inner_diameter_mm", "length_mm", "depth_mm", "awg", "wire_diameter_mm",
-                 "outer_wire_diameter_mm", "insulation", "conductor", "temp_c", "cap_nf", "lead_length_mm")
-
-
-def add_coil_arguments(p) -> None:
-    """The coil options shared by the commands that model a coil (``coil``, ``target``)."""
-    g = p.add_argument_group("coil (a JSON file with --coil, or the options; options override the file)")
-    g.add_argument("--coil", metavar="FILE", help="coil description file (JSON; see docs/models.md)")
-    g.add_argument("--turns", type=float, metavar="N", help="number of turns")
-    g.add_argument("--inner-diameter-mm", type=float, metavar="D", help="former diameter (inside of the winding)")
-    g.add_argument("--length-mm", type=float, metavar="L", help="axial length of the winding")
-    g.add_argument("--depth-mm", type=float, metavar="T", help="radial build of the winding (0 = single layer)")
-    w = g.add_mutually_exclusive_group()
-    w.add_argument("--awg", metavar="G", help="wire gauge (AWG, ASTM B258), e.g. 26 or 00")
-    w.add_argument("--wire-diameter-mm", type=float, metavar="W", help="bare wire diameter")
-    g.add_argument("--outer-wire-diameter-mm", type=float, metavar="W",
-                   help="wire diameter over the enamel (default: approximate build for --insulation)")
-    g.add_argument("--insulation", choices=("grade1", "grade2", "none"), help="enamel build (default grade1)")
-    g.add_argument("--conductor", choices=("copper", "aluminium"), help="wire metal (default copper)")
-    g.add_argument("--temp-c", type=float, metavar="T", help="winding temperature, degC (default 20)")
-    g.add_argument("--cap-nf", type=float, metavar="C", help="tuning capacitor across the coil, nF")
-    g.add_argument("--lead-length-mm", type=float, metavar="L", help="extra wire for the leads")
-
-
-def design_from_args(args):
-    """A checked CoilDesign from --coil FILE and/or the coil options."""
-    from coilshift.analysis.models.coil import CoilDesign, check_design, load_coil
-    from coilshift.logger.errors import InputError
-
-    given = {k: getattr(args, k) for k in _COIL_OPTIONS if getattr(args, k, None) is not None}
-    if args.coil:
-        base = load_coil(args.coil).to_dict()
-        if "awg" in given:
-            base.pop("wire_diameter_mm", None)
-        if "wire_diameter_mm" in given:
-            base.pop("awg", None)
-        base.update(given)
-        where = f"{args.coil} (with command-line options)" if given else args.coil
-    else:
-        missing = [k for k in ("turns", "inner_diameter_mm", "length_mm") if k not in given]
-        if missing:
-            opts = ", ".join("--" + k.replace("_", "-") for k in missing)
-            raise InputError(f"coil: give --coil FILE or {opts}")
-        base, where = given, "coil options"
-    design = CoilDesign(**base)
-    check_design(design, where)
-    return design
 
 
 def register(subparsers) -> None:
@@ -64,7 +17,7 @@ def register(subparsers) -> None:
     add_coil_arguments(p)
     p.add_argument("--for-freq-hz", type=float, metavar="F",
                    help="also give the tuning capacitor for this LC frequency")
-    p.add_argument("--json", action="store_true", help="print one JSON object")
+    add_json_option(p, "print one JSON object")
     p.set_defaults(func=run)
 
 
@@ -76,6 +29,7 @@ def run(args) -> int:
     import math
 
     from coilshift.analysis.models.coil import analyse_coil, capacitance_for_frequency_nf
+    from coilshift.cli.coil_args import design_from_args
     from coilshift.cli.common import print_json
     from coilshift.logger.errors import InputError
 

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from coilshift.cli.options import add_force_option, add_json_option, add_out_option
+
 ORDER = 5
 DEFAULT_DIR = "coilshift-demo"
 
@@ -14,10 +16,10 @@ def register(subparsers) -> None:
                     "(five test pieces, five distances, a stability run), track the recordings, "
                     "analyse them and write a report. All data are synthetic.",
     )
-    p.add_argument("-o", "--out", default=None, metavar="DIR",
-                   help=f"output folder (default: ./{DEFAULT_DIR}, or ./{DEFAULT_DIR}-2, -3 ... if taken)")
-    p.add_argument("--force", action="store_true", help="allow DIR to be a non-empty folder")
-    p.add_argument("--json", action="store_true", help="print the summary as one JSON object")
+    add_out_option(p, f"output folder (default: ./{DEFAULT_DIR}, or ./{DEFAULT_DIR}-2, -3 ... if taken)",
+                   default=None, metavar="DIR")
+    add_force_option(p, "allow DIR to be a non-empty folder")
+    add_json_option(p, "print the summary as one JSON object")
     p.set_defaults(func=run)
 
 

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from coilshift.cli.options import add_json_option
+
 ORDER = 10
 
 
@@ -12,7 +14,7 @@ def register(subparsers) -> None:
         description="List the audio input devices PortAudio can see. Use the index (or part of the "
                     "name) with 'coilshift capture --device'.",
     )
-    p.add_argument("--json", action="store_true", help="print one JSON object instead of a table")
+    add_json_option(p, "print one JSON object instead of a table")
     p.set_defaults(func=run)
 
 

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from coilshift.cli.options import add_force_option, add_json_option, add_out_option
+
 ORDER = 80
 
 
@@ -14,14 +16,15 @@ def register(subparsers) -> None:
                     "The script format is described in docs/guide.md and coilshift.sim.script.",
     )
     p.add_argument("script", help="simulation script (JSON)")
-    p.add_argument("-o", "--out", required=True, help="output folder (new, or empty)")
-    p.add_argument("--force", action="store_true", help="allow a non-empty output folder")
-    p.add_argument("--json", action="store_true", help="print a JSON summary instead of text")
+    add_out_option(p, "output folder (new, or empty)", required=True)
+    add_force_option(p, "allow a non-empty output folder")
+    add_json_option(p, "print a JSON summary instead of text")
     p.set_defaults(func=run)
 
 
 def run(args) -> int:
-    from coilshift.cli.common import new_output_dir, print_json
+    from coilshift.cli.common import print_json
+    from coilshift.logger.runfolder.folders import new_output_dir
     from coilshift.sim.render import simulate
     from coilshift.sim.script import load_script
 

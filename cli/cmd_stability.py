@@ -4,12 +4,9 @@ from __future__ import annotations
 
 import argparse
 
-ORDER = 60
+from coilshift.cli.options import add_force_option, add_json_option, add_out_option, add_settle_option
 
-PLOT_SIGMA = "sigma_tau.png"
-PLOT_DRIFT = "drift.png"
-TABLE = "stability.csv"
-SUMMARY = "stability.json"
+ORDER = 60
 
 
 def register(subparsers) -> None:
@@ -23,9 +20,9 @@ def register(subparsers) -> None:
                     "no statistic term reaches across one.",
     )
     p.add_argument("log", metavar="RUN_DIR|LOG.csv", help="run folder or CSV with t_s and freq_hz")
-    p.add_argument("--json", action="store_true", help="print one JSON object instead of the table")
-    p.add_argument("-o", "--out", metavar="OUT", help="write plots, stability.csv and stability.json to this new folder")
-    p.add_argument("--force", action="store_true", help="allow OUT to be a non-empty folder")
+    add_json_option(p, "print one JSON object instead of the table")
+    add_out_option(p, "write plots, stability.csv and stability.json to this new folder", metavar="OUT")
+    add_force_option(p, "allow OUT to be a non-empty folder")
     p.add_argument("--temperature", metavar="CSV", help="time_s,temp_c readings on the log's clock: fit Hz/degC")
     p.add_argument("--nominal-hz", type=float, metavar="HZ",
                    help="frequency the fractional values refer to (default: mean of the log)")
@@ -33,8 +30,8 @@ def register(subparsers) -> None:
                    help="compute the deviations on the residual after removing the linear drift")
     p.add_argument("--confidence", type=float, default=0.6827, metavar="P",
                    help="two-sided confidence level of the intervals (default 0.6827, one sigma)")
-    p.add_argument("--settle", type=float, metavar="HZ_PER_MIN",
-                   help="warm-up ends when |drift rate| stays below this (default 1 ppm of nominal per minute)")
+    add_settle_option(p, "warm-up ends when |drift rate| stays below this (default 1 ppm of nominal per minute)",
+                      metavar="HZ_PER_MIN")
     p.add_argument("--window", type=float, metavar="S",
                    help="window for the local drift rate (default min(60 s, record/5))")
     p.set_defaults(func=run)
@@ -92,35 +89,15 @@ def _table_text(res) -> str:
     return "\n".join(lines) + "\n"
 
 
-def _csv_text(res) -> str:
-    import pandas as pd
-
-    cols = {"tau_s": res.tau_s, "m": res.m}
-    for k in ("adev", "oadev", "mdev", "tdev"):
-        unit = "s" if k == "tdev" else "hz"
-        cols[f"{k}_{unit}"] = getattr(res, f"{k}_{unit}")
-        cols[f"{k}_lo_{unit}"] = res.ci_lo[k]
-        cols[f"{k}_hi_{unit}"] = res.ci_hi[k]
-        cols[f"{k}_edf"] = res.edf[k]
-        cols[f"{k}_n_terms"] = res.n_terms[k]
-    for k in ("adev", "oadev", "mdev"):
-        cols[f"{k}_frac"] = res.frac(k)
-    cols["within_frame"] = res.within_frame()
-    cols["noise_alpha"] = res.alpha
-    cols["noise_type"] = res.noise_type
-    cols["noise_method"] = res.noise_method
-    return pd.DataFrame(cols).to_csv(index=False, float_format="%.10g", lineterminator="\n")
-
-
 def run(args: argparse.Namespace) -> int:
-    import json
     import math
     import sys
 
     from coilshift.logger.runfolder.reader import read_log
-    from coilshift.analysis.stability.analyse import analyse_stability, read_temperature_csv
-    from coilshift.cli.common import new_output_dir, print_json, to_jsonable
-    from coilshift.logger.runfolder.atomic import write_text_atomic
+    from coilshift.analysis.stability.analyse import analyse_stability
+    from coilshift.analysis.stability.tempco import read_temperature_csv
+    from coilshift.cli.common import print_json
+    from coilshift.logger.runfolder.folders import new_output_dir
     from coilshift.logger.errors import InputError
 
     if not 0 < args.confidence < 1:
@@ -146,13 +123,9 @@ def run(args: argparse.Namespace) -> int:
     if log.interrupted:
         summary["log_interrupted"] = True
     if args.out:
-        from coilshift.analysis.report.plots_stability import plot_drift, plot_sigma_tau
+        from coilshift.analysis.report.stability_outputs import write_stability_outputs
 
-        out = new_output_dir(args.out, args.force)
-        plot_sigma_tau(res, out / PLOT_SIGMA)
-        plot_drift(res, out / PLOT_DRIFT)
-        write_text_atomic(out / TABLE, _csv_text(res))
-        write_text_atomic(out / SUMMARY, json.dumps(to_jsonable(summary), indent=2, allow_nan=False) + "\n")
+        written = write_stability_outputs(res, new_output_dir(args.out, args.force), summary)
     if args.json:
         print_json(summary)
     else:
@@ -160,5 +133,5 @@ def run(args: argparse.Namespace) -> int:
         if log.interrupted:
             sys.stdout.write("note: the log was interrupted (incomplete last line or run not complete)\n")
         if args.out:
-            sys.stdout.write(f"wrote {args.out}/: {PLOT_SIGMA}, {PLOT_DRIFT}, {TABLE}, {SUMMARY}\n")
+            sys.stdout.write(f"wrote {args.out}/: {', '.join(p.name for p in written)}\n")
     return 0

@@ -2,12 +2,13 @@
 
 from __future__ import annotations
 
+from coilshift.cli.options import (add_coil_arguments, add_force_option, add_freq_option, add_json_option,
+                                   add_out_option, add_target_option, add_threshold_option)
+
 ORDER = 61
 
 
 def register(subparsers) -> None:
-    from coilshift.cli.cmd_coil import add_coil_arguments
-
     p = subparsers.add_parser(
         "target", help="predict the shift a small metal sphere causes vs distance",
         description="Predict the frequency shift of the coil's LC oscillator caused by a small "
@@ -16,19 +17,17 @@ def register(subparsers) -> None:
                     "target centre.")
     add_coil_arguments(p)
     t = p.add_argument_group("target (a sphere)")
-    t.add_argument("--target", metavar="SPEC",
-                   help="target description, e.g. 'steel:diameter_mm=12' or "
-                        "'sigma=3.5e7,mu_r=1,diameter_mm=20'")
+    add_target_option(t, "target description, e.g. 'steel:diameter_mm=12' or 'sigma=3.5e7,mu_r=1,diameter_mm=20'",
+                      metavar="SPEC")
     t.add_argument("--material", metavar="NAME", help="material name (see docs/models.md)")
     t.add_argument("--conductivity-s-per-m", type=float, metavar="S", help="conductivity, S/m")
     t.add_argument("--mu-r", type=float, metavar="M", help="relative permeability")
     t.add_argument("--diameter-mm", type=float, metavar="D", help="sphere diameter")
-    p.add_argument("--freq-hz", type=float, metavar="F",
-                   help="operating frequency (default: the coil's LC frequency with --cap-nf)")
+    add_freq_option(p, "operating frequency (default: the coil's LC frequency with --cap-nf)")
     p.add_argument("--distances-mm", type=float, nargs="+", metavar="Z",
                    help="distances to tabulate (default: 0.2 to 4 coil radii)")
     th = p.add_mutually_exclusive_group()
-    th.add_argument("--threshold-hz", type=float, metavar="X", help="smallest detectable |shift|, Hz")
+    add_threshold_option(th, "smallest detectable |shift|, Hz")
     th.add_argument("--noise-hz", type=float, metavar="S",
                     help="the oscillator's Allan deviation (Hz) at the reading time: threshold = "
                          "SIGMAS x sqrt(2) x S (a reading minus its baseline)")
@@ -36,10 +35,10 @@ def register(subparsers) -> None:
                     help="take that Allan deviation from a target-free frequency log at --tau-s")
     p.add_argument("--tau-s", type=float, default=1.0, help="reading (averaging) time for --noise-log (default 1 s)")
     p.add_argument("--sigmas", type=float, default=3.0, help="threshold multiple of the noise (default 3)")
-    p.add_argument("-o", "--out", metavar="DIR",
-                   help="write prediction.csv, prediction.json and shift_vs_distance.png to a new folder")
-    p.add_argument("--force", action="store_true", help="allow --out to be a folder that is not empty")
-    p.add_argument("--json", action="store_true", help="print one JSON object")
+    add_out_option(p, "write prediction.csv, prediction.json and shift_vs_distance.png to a new folder",
+                   metavar="DIR")
+    add_force_option(p, "allow --out to be a folder that is not empty")
+    add_json_option(p, "print one JSON object")
     p.set_defaults(func=run)
 
 
@@ -92,7 +91,7 @@ def threshold_from_args(args) -> float | None:
         import numpy as np
 
         from coilshift.logger.runfolder.reader import read_log
-        from coilshift.analysis.stability.analyse import noise_at_tau_hz
+        from coilshift.analysis.stability.noise import noise_at_tau_hz
 
         if not (math.isfinite(args.tau_s) and args.tau_s > 0):
             raise InputError(f"--tau-s {args.tau_s}: must be positive")
@@ -111,7 +110,7 @@ def run(args) -> int:
     from coilshift.analysis.models.coil import analyse_coil
     from coilshift.analysis.models.target import (closed_form_range_mm, induction_number, predicted_range_mm,
                                            predicted_response)
-    from coilshift.cli.cmd_coil import design_from_args
+    from coilshift.cli.coil_args import design_from_args
     from coilshift.cli.common import print_json
 
     rep = analyse_coil(design_from_args(args))
@@ -172,7 +171,8 @@ def _write_outputs(args, rep, target, pred, summary) -> list[str]:
 
     from coilshift.analysis.report.plots_models import plot_predicted_shift
     from coilshift.analysis.models.target import closed_form_amplitude_hz, predicted_shift_hz
-    from coilshift.cli.common import new_output_dir, to_jsonable
+    from coilshift.cli.common import to_jsonable
+    from coilshift.logger.runfolder.folders import new_output_dir
     from coilshift.logger.runfolder.atomic import write_json_atomic, write_text_atomic
 
     folder = new_output_dir(args.out, args.force)

@@ -4,17 +4,19 @@ from __future__ import annotations
 
 import sys
 
+from coilshift.cli.options import (add_channel_option, add_force_option, add_json_option, add_markers_option,
+                                   add_quiet_option, add_run_folder_option, add_tracking_options)
+
 ORDER = 30
 
 
 def register(subparsers) -> None:
-    from coilshift.cli.cmd_capture import add_tracking_options
-
     p = subparsers.add_parser(
         "track",
         help="track a recording or scope export into a run folder (log.csv, run.json)",
         description="Track the oscillator frequency in a recording and write a run folder: log.csv "
-                    "(t_s, utc, freq_hz, shift_hz, amp_dbfs, snr_db, flags), run.json (source, tracker "
+                    "(one row per frame: time, frequency, shift, level, SNR, flags; docs/recording.md lists "
+                    "the columns), run.json (source, tracker "
                     "settings, corrections, baseline and how it was set) and a copy of the markers. "
                     "Audio files (WAV 8/16/24/32-bit PCM or float, FLAC, AIFF, ...) and oscilloscope CSV "
                     "exports (a time column and voltage columns; preamble lines are skipped) are streamed, "
@@ -24,15 +26,13 @@ def register(subparsers) -> None:
                     "nothing is written.",
     )
     p.add_argument("input", metavar="INPUT", help="recording: WAV/FLAC/AIFF/OGG file or scope CSV/TXT export")
-    p.add_argument("-o", "--out", required=True, metavar="RUN_DIR", help="run folder to create (new or empty)")
-    p.add_argument("--force", action="store_true", help="replace the run files in an existing folder")
-    p.add_argument("--markers", metavar="CSV",
-                   help="markers CSV (start_s,end_s,target,distance_mm); its baseline rows set the baseline")
-    p.add_argument("--channel", type=int, default=0, metavar="C",
-                   help="channel to track, numbered from 0 (for a scope export: the voltage column, from 0)")
+    add_run_folder_option(p)
+    add_force_option(p, "replace the run files in an existing folder")
+    add_markers_option(p, "CSV", "markers CSV (start_s,end_s,target,distance_mm); its baseline rows set the baseline")
+    add_channel_option(p, "channel to track, numbered from 0 (for a scope export: the voltage column, from 0)")
     add_tracking_options(p)
-    p.add_argument("--json", action="store_true", help="print the summary as one JSON object on stdout")
-    p.add_argument("--quiet", action="store_true", help="no progress bar and no text summary (warnings still shown)")
+    add_json_option(p, "print the summary as one JSON object on stdout")
+    add_quiet_option(p, "no progress bar and no text summary (warnings still shown)")
     p.set_defaults(func=run)
 
 
@@ -43,11 +43,11 @@ def warn(lines) -> None:
 
 
 def run(args) -> int:
-    from coilshift.cli.cmd_capture import check_tracking_options, tracking_from_args
     from coilshift.cli.common import print_json
+    from coilshift.cli.tracking_args import check_tracking_options, tracking_from_args
     from coilshift.logger.pipeline.batch import track_source
     from coilshift.logger.progress import make_progress
-    from coilshift.logger.sources.recorded import open_source
+    from coilshift.logger.sources import open_source
 
     check_tracking_options(args)
     source = open_source(args.input, channel=args.channel)

@@ -9,7 +9,6 @@ import pkgutil
 import sys
 
 from coilshift.logger.errors import InputError
-from coilshift.logger.runfolder.writer import software_version
 
 PROG = "coilshift"
 
@@ -19,13 +18,28 @@ class _Parser(argparse.ArgumentParser):
         self.exit(2, f"{self.prog}: error: {message}\n")
 
 
+class _Version(argparse.Action):
+    """``--version``, looked up only when asked for: the module that knows it imports NumPy, which
+    ``coilshift --help`` does not need."""
+
+    def __init__(self, option_strings, dest=argparse.SUPPRESS, default=argparse.SUPPRESS,
+                 help="show program's version number and exit"):
+        super().__init__(option_strings=option_strings, dest=dest, default=default, nargs=0, help=help)
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        from coilshift.logger.runfolder.writer import software_version
+
+        sys.stdout.write(f"{PROG} {software_version()}\n")
+        parser.exit()
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(
         prog=PROG,
         description="Track an oscillator's frequency from a line-in, a recording or a scope export; "
                     "log shifts; analyse calibration runs, stability and coil designs.",
     )
-    parser.add_argument("--version", action="version", version=f"{PROG} {software_version()}")
+    parser.add_argument("--version", action=_Version)
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     sub.required = True
     import coilshift.cli as pkg

@@ -122,7 +122,7 @@ class DemoRow:
 
 def _track(recording: Path, markers: Path | None, run_dir: Path) -> dict:
     from coilshift.logger.pipeline.batch import track_source
-    from coilshift.logger.sources.recorded import open_source
+    from coilshift.logger.sources import open_source
     from coilshift.logger.tracking.tracker import TrackerSettings
 
     return track_source(open_source(recording), TrackerSettings(), None, run_dir, markers=markers)
@@ -158,11 +158,12 @@ def run_demo(out_dir: str | os.PathLike, force: bool = False,
     from coilshift.analysis.calibration.run import analyse_run
     from coilshift.analysis.models.coil import analyse_coil, design_from_dict
     from coilshift.logger.runfolder.reader import read_log
-    from coilshift.analysis.report.plots_stability import plot_drift, plot_sigma_tau
-    from coilshift.analysis.report.calibration_report import write_outputs
+    from coilshift.analysis.report.stability_outputs import write_stability_outputs
+    from coilshift.analysis.report.calibration_outputs import write_outputs
     from coilshift.analysis.stability.analyse import analyse_stability
     from coilshift.analysis.models.target import parse_target_spec, predicted_range_mm
-    from coilshift.cli.common import new_output_dir, to_jsonable
+    from coilshift.logger.runfolder.atomic import to_jsonable
+    from coilshift.logger.runfolder.folders import new_output_dir
 
     t_start = time.monotonic()
     out = new_output_dir(out_dir, force)
@@ -196,10 +197,7 @@ def run_demo(out_dir: str | os.PathLike, force: bool = False,
     slog = read_log(out / "runs" / "B-200-stability", columns=("flags",))
     stab = analyse_stability(slog.t_s, slog.freq_hz, slog.usable(), source="B-200 stability run")
     (out / "stability").mkdir(exist_ok=True)
-    plot_sigma_tau(stab, out / "stability" / "sigma_tau.png")
-    plot_drift(stab, out / "stability" / "drift.png")
-    write_text_atomic(out / "stability" / "stability.json",
-                      json.dumps(to_jsonable(stab.to_dict()), indent=2, allow_nan=False) + "\n")
+    write_stability_outputs(stab, out / "stability")
 
     rows: list[DemoRow] = []
     for key, res in results.items():

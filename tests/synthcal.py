@@ -16,7 +16,8 @@ from scipy.signal import lfilter
 
 from coilshift.logger.runfolder.frames import FrameTable
 from coilshift.logger.runfolder.markers import BASELINE, Marker, markers_to_csv
-from coilshift.logger.runfolder.writer import RunWriter, prepare_run_dir, write_markers_copy
+from coilshift.logger.runfolder.folders import prepare_run_dir
+from coilshift.logger.runfolder.writer import RunWriter, write_markers_copy
 
 
 @dataclass

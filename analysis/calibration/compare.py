@@ -1,7 +1,7 @@
 """Several calibration runs side by side (e.g. two coils, two oscillators, before and after).
 
 Targets are matched by name. The comparison is a table of ranges (with intervals) and calls per
-target and run; the overlay of curves is drawn by :mod:`.plots_calibration`.
+target and run; the overlay of curves is drawn by :mod:`coilshift.analysis.report.plots_calibration`.
 """
 
 from __future__ import annotations

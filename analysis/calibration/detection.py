@@ -193,7 +193,7 @@ def noise_at_dwell_hz(t_s: np.ndarray, freq_hz: np.ndarray, dwell_s: float) -> t
     -------
     (noise_hz, tau_s) : NaN, NaN when the baselines support no averaging time at all
     """
-    from coilshift.analysis.stability.analyse import noise_at_tau_hz
+    from coilshift.analysis.stability.noise import noise_at_tau_hz
 
     tau = float(dwell_s)
     t_s = np.asarray(t_s, float)

@@ -6,7 +6,8 @@ shift-versus-distance curve of each target (:mod:`.curvefit`), sets the detectio
 from the baseline noise at the dwell time (:mod:`.detection`), derives the range with its
 bootstrap interval, calls each target ferrous or non-ferrous (:mod:`.classify`), and, given a
 coil and target models, compares the measured curve with the predicted one. Nothing here
-writes files; :mod:`.report` and :mod:`.plots_calibration` turn the result into outputs.
+writes files: :mod:`.summary` turns the result into dictionaries, and
+:mod:`coilshift.analysis.report.calibration_outputs` into tables, plots and the HTML report.
 """
 
 from __future__ import annotations
@@ -18,14 +19,14 @@ from pathlib import Path
 
 import numpy as np
 
-from coilshift.logger.errors import InputError
+from coilshift.logger.errors import InputError, setting
 from coilshift.logger.runfolder.markers import check_within, read_markers
+from coilshift.logger.runfolder.reader import FrequencyLog, read_log
 
 from coilshift.analysis.calibration import classify as _classify
 from coilshift.analysis.calibration.curvefit import CurveFit, FitError, fit_dipole, fit_power_law
-from coilshift.analysis.calibration.detection import (DEFAULT_BOOTSTRAP, DEFAULT_K, DEFAULT_SEED, RangeResult, detection_range,
-                        noise_at_dwell_hz, numeric_range_mm)
-from coilshift.logger.runfolder.reader import FrequencyLog, read_log
+from coilshift.analysis.calibration.detection import (DEFAULT_BOOTSTRAP, DEFAULT_K, DEFAULT_SEED, RangeResult,
+                                                      detection_range, noise_at_dwell_hz, numeric_range_mm)
 from coilshift.analysis.calibration.steps import DEFAULT_SETTLE_S, MIN_FRAMES, Point, Segment, Step, combine_repeats, compute_steps
 
 #: baseline noise this many times the typical step error means drift, not noise, sets the
@@ -167,6 +168,42 @@ def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None 
     ------
     InputError : unreadable log or markers, no markers, no baselines or targets, bad options
     """
+    _check_settings(polarity, threshold_hz, k, settle_s)
+    target_models = dict(target_models or {})
+    reference = dict(reference or {})
+    _check_references(reference, target_models, coil)
+    log = read_log(path, columns=("flags",))  # the analysis needs time, frequency and flags only
+    src = str(path)
+    if settle_s is None:
+        settle_s = 0.0 if isinstance(log.meta.get("calibration"), dict) else DEFAULT_SETTLE_S
+    markers = _load_markers(log, markers_path, src)
+    usable = log.usable()
+    steps, bases = compute_steps(log.t_s, log.freq_hz, markers, usable, settle_s, source=src)
+    warnings = _stretch_warnings(log, markers, steps, bases)
+    points = combine_repeats(steps)
+    warnings += _repeat_warnings(points)
+    baseline_hz = float(np.median([b.stat.mean for b in bases]))
+    dwell_s = float(np.median([s.end_s - s.start_s for s in steps]))
+    noise = _noise_and_threshold(log, bases, usable, steps, dwell_s, threshold_hz, k)
+    warnings += noise.warnings
+    radius = None
+    if coil is not None:
+        radius = float(coil.mean_radius_mm)
+    by_target: dict[str, list[Point]] = {}
+    for p in points:
+        by_target.setdefault(p.target, []).append(p)
+    targets = [_analyse_target(tname, pts, noise.threshold_hz, radius=radius, fit_offset=fit_offset,
+                               n_boot=n_boot, seed=seed, polarity=polarity, coil=coil,
+                               spec=target_models.get(tname), baseline_hz=baseline_hz)
+               for tname, pts in by_target.items()]
+    warnings += _call_warnings(targets, by_target, target_models, reference, polarity)
+    return CalibrationResult(src, name or Path(src).name or src, log, steps, bases, targets, baseline_hz, dwell_s,
+                             noise.noise_hz, noise.noise_tau_s, noise.threshold_hz, noise.source, k, settle_s,
+                             polarity, coil, radius, warnings)
+
+
+def _check_settings(polarity: str, threshold_hz: float | None, k: float, settle_s: float | None) -> None:
+    """Refuse a bad polarity, threshold, noise factor or settling time before the log is read."""
     if polarity not in _classify.POLARITIES:
         raise InputError(f"polarity: must be normal or inverted, got {polarity!r}")
     if threshold_hz is not None and not (math.isfinite(threshold_hz) and threshold_hz > 0):
@@ -175,29 +212,33 @@ def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None 
         raise InputError(f"noise factor: must be positive, got {k}")
     if settle_s is not None and not (math.isfinite(settle_s) and settle_s >= 0):
         raise InputError(f"settling time: must be zero or positive seconds, got {settle_s}")
-    target_models = dict(target_models or {})
-    reference = dict(reference or {})
+
+
+def _check_references(reference: dict, target_models: dict, coil) -> None:
+    """Refuse a reference target of unknown kind, and target models without a coil."""
     for tname, kind in reference.items():
         if kind not in _classify.CLASSES:
             raise InputError(f"reference target {tname}: kind must be ferrous or non-ferrous, got {kind!r}")
     if target_models and coil is None:
-        raise InputError("target models need a coil (--coil FILE) to predict a curve")
-    log = read_log(path, columns=("flags",))  # the analysis needs time, frequency and flags only
-    src = str(path)
-    if settle_s is None:
-        settle_s = 0.0 if isinstance(log.meta.get("calibration"), dict) else DEFAULT_SETTLE_S
+        raise InputError(f"target models need a coil ({setting('coil')} FILE) to predict a curve")
+
+
+def _load_markers(log: FrequencyLog, markers_path, src: str) -> list:
+    """The stretches: from ``markers_path`` (checked against the log's length) or the run's own."""
     if markers_path is not None:
         markers = read_markers(markers_path)
         t = log.t_s
         # frame times are frame centres: the recording runs on about one hop past the last one
         hop = float(np.median(np.diff(t))) if t.size > 1 else 0.0
         check_within(markers, float(t[-1]) + hop, str(markers_path))
-    else:
-        markers = log.markers
-        if not markers:
-            raise InputError(f"{src}: no markers.csv in the run; give the stretches with --markers FILE")
-    usable = log.usable()
-    steps, bases = compute_steps(log.t_s, log.freq_hz, markers, usable, settle_s, source=src)
+        return markers
+    if not log.markers:
+        raise InputError(f"{src}: no markers.csv in the run; give the stretches with {setting('markers_path')} FILE")
+    return log.markers
+
+
+def _stretch_warnings(log: FrequencyLog, markers: list, steps: list[Step], bases: list[Segment]) -> list[str]:
+    """An interrupted log, stretches left out, and target stretches without a baseline on both sides."""
     warnings: list[str] = []
     if log.interrupted:
         warnings.append("the run was interrupted: the log ends early")
@@ -209,13 +250,30 @@ def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None 
     n_unbr = sum(1 for s in steps if not s.bracketed)
     if n_unbr:
         warnings.append(f"{n_unbr} target stretch(es) have a baseline on one side only: drift not removed there")
-    points = combine_repeats(steps)
-    for p in points:
-        if not p.consistent:
-            warnings.append(f"{p.target} at {p.distance_mm:g} mm: the {p.repeats} repeats disagree beyond "
-                            f"their errors (chi2 {p.chi2:.1f}); error enlarged to cover the scatter")
-    baseline_hz = float(np.median([b.stat.mean for b in bases]))
-    dwell_s = float(np.median([s.end_s - s.start_s for s in steps]))
+    return warnings
+
+
+def _repeat_warnings(points: list[Point]) -> list[str]:
+    return [f"{p.target} at {p.distance_mm:g} mm: the {p.repeats} repeats disagree beyond "
+            f"their errors (chi2 {p.chi2:.1f}); error enlarged to cover the scatter"
+            for p in points if not p.consistent]
+
+
+@dataclass
+class _Threshold:
+    """The baseline noise at the dwell and the detection threshold set from it (or given)."""
+
+    noise_hz: float
+    noise_tau_s: float
+    threshold_hz: float
+    source: str
+    warnings: list[str]
+
+
+def _noise_and_threshold(log: FrequencyLog, bases: list[Segment], usable: np.ndarray, steps: list[Step],
+                         dwell_s: float, threshold_hz: float | None, k: float) -> _Threshold:
+    """Noise of the baselines at the dwell (:func:`.detection.noise_at_dwell_hz`); threshold k x noise."""
+    warnings: list[str] = []
     noise_hz, noise_tau = noise_at_dwell_hz(log.t_s, _baseline_only(log, bases, usable), dwell_s)
     if threshold_hz is not None:
         thr, thr_src = float(threshold_hz), "given"
@@ -234,85 +292,39 @@ def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None 
                         f"typical step error ({typical_err:.3g} Hz): drift or slow wander dominates it"
                         + (" and sets the threshold; let the oscillator warm up, shorten the dwell, or give "
                            "--threshold-hz" if thr_src != "given" else ""))
-    radius = None
-    if coil is not None:
-        radius = float(coil.mean_radius_mm)
-    targets: list[TargetResult] = []
-    by_target: dict[str, list[Point]] = {}
-    for p in points:
-        by_target.setdefault(p.target, []).append(p)
-    for tname, pts in by_target.items():
-        d = [p.distance_mm for p in pts]
-        y = [p.shift_hz for p in pts]
-        e = [p.stderr_hz for p in pts]
-        fit = power = None
-        reason = ""
-        try:
-            fit = fit_dipole(d, y, e, radius_mm=radius, fit_offset=fit_offset)
-        except FitError as exc:
-            reason = f"no curve: {exc}"
-        try:
-            power = fit_power_law(d, y, e)
-        except FitError:
-            power = None
-        rng_res = detection_range(fit, thr, n_boot=n_boot, seed=seed, fit_reason=reason)
-        p_range = numeric_range_mm(power, thr) if power is not None else math.nan
-        call = _classify.classify_points(tname, pts, thr, polarity)
-        pred = None
-        if tname in target_models:
-            pred = _prediction(coil, target_models[tname], baseline_hz, pts)
-        targets.append(TargetResult(tname, pts, fit, reason, power, rng_res, p_range, call, pred))
-    for tname in target_models:
-        if tname not in by_target:
-            warnings.append(f"target model {tname!r} names no target of this run")
+    return _Threshold(noise_hz, noise_tau, thr, thr_src, warnings)
+
+
+def _analyse_target(tname: str, pts: list[Point], thr: float, *, radius: float | None, fit_offset: bool,
+                    n_boot: int, seed: int, polarity: str, coil, spec, baseline_hz: float) -> TargetResult:
+    """One target: dipole and power-law fits, range with its interval, the call, the prediction."""
+    d = [p.distance_mm for p in pts]
+    y = [p.shift_hz for p in pts]
+    e = [p.stderr_hz for p in pts]
+    fit = power = None
+    reason = ""
+    try:
+        fit = fit_dipole(d, y, e, radius_mm=radius, fit_offset=fit_offset)
+    except FitError as exc:
+        reason = f"no curve: {exc}"
+    try:
+        power = fit_power_law(d, y, e)
+    except FitError:
+        power = None
+    rng_res = detection_range(fit, thr, n_boot=n_boot, seed=seed, fit_reason=reason)
+    p_range = numeric_range_mm(power, thr) if power is not None else math.nan
+    call = _classify.classify_points(tname, pts, thr, polarity)
+    pred = _prediction(coil, spec, baseline_hz, pts) if spec is not None else None
+    return TargetResult(tname, pts, fit, reason, power, rng_res, p_range, call, pred)
+
+
+def _call_warnings(targets: list[TargetResult], by_target: dict, target_models: dict, reference: dict,
+                   polarity: str) -> list[str]:
+    """Target models without a target, the polarity check against reference targets, mixed steel."""
+    warnings = [f"target model {tname!r} names no target of this run" for tname in target_models
+                if tname not in by_target]
     classes = {t.target: t.classification for t in targets}
     warnings += _classify.check_reference(classes, reference, polarity)
     if any(t.classification.n_significant and t.cls == _classify.INDETERMINATE for t in targets):
         warnings.append(_classify.MIXED_STEEL_CAUTION)
-    return CalibrationResult(src, name or Path(src).name or src, log, steps, bases, targets, baseline_hz, dwell_s,
-                             noise_hz, noise_tau, thr, thr_src, k, settle_s, polarity, coil, radius, warnings)
-
-
-def result_summary(res: CalibrationResult) -> dict:
-    """The run in the documented ``--json`` shape (exactly these keys).
-
-    ``{"targets": [{"target", "class", "points": [{"distance_mm", "shift_hz", "stderr_hz"}],
-    "range_mm", "range_ci_mm"}], "threshold_hz", "noise_hz"}``; undefined values are None.
-    """
-    out = []
-    for t in res.targets:
-        ci = list(t.range.ci_mm) if t.range.ci_mm is not None else None
-        out.append({"target": t.target, "class": t.cls,
-                    "points": [{"distance_mm": p.distance_mm, "shift_hz": p.shift_hz, "stderr_hz": p.stderr_hz}
-                               for p in t.points],
-                    "range_mm": t.range.range_mm, "range_ci_mm": ci})
-    return {"targets": out, "threshold_hz": _num(res.threshold_hz), "noise_hz": _num(res.noise_hz)}
-
-
-def _num(x):
-    return float(x) if x is not None and math.isfinite(x) else None
-
-
-def result_details(res: CalibrationResult) -> dict:
-    """Everything a reader of ``result.json`` may want: the summary plus fits, calls and settings."""
-    targets = []
-    for t in res.targets:
-        item = {"target": t.target, "class": t.cls, "class_reason": t.classification.reason,
-                "points": [{"distance_mm": p.distance_mm, "shift_hz": p.shift_hz, "stderr_hz": p.stderr_hz,
-                            "n": p.n, "repeats": p.repeats, "repeats_consistent": p.consistent}
-                           for p in t.points],
-                "fit": t.fit.to_dict() if t.fit else None, "fit_reason": t.fit_reason,
-                "power_law": t.power_fit.to_dict() if t.power_fit else None,
-                "power_law_range_mm": t.power_range_mm, **t.range.to_dict()}
-        if t.prediction is not None:
-            pr = t.prediction
-            item["prediction"] = {"model": pr.spec.to_dict(), "freq_hz": pr.freq_hz,
-                                  "predicted_shift_hz": pr.shift_hz, "measured_over_predicted": pr.ratio,
-                                  "scale": pr.scale, "scale_err": pr.scale_err}
-        targets.append(item)
-    return {"run": res.source, "targets": targets, "threshold_hz": res.threshold_hz,
-            "threshold_source": res.threshold_source, "noise_factor_k": res.k, "noise_hz": res.noise_hz,
-            "noise_tau_s": res.noise_tau_s, "dwell_s": res.dwell_s, "baseline_hz": res.baseline_hz,
-            "settle_s": res.settle_s, "polarity": res.polarity, "coil_radius_mm": res.radius_mm,
-            "interrupted": res.log.interrupted, "warnings": res.warnings,
-            "cautions": [_classify.POLARITY_CAUTION, _classify.MIXED_STEEL_CAUTION]}
+    return warnings

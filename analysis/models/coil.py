@@ -37,8 +37,8 @@ import numpy as np
 from coilshift.logger.errors import InputError
 from coilshift.logger.textfile import read_json
 
-from coilshift.analysis.models import inductance as ind
 from coilshift.analysis.models import wire as wiremod
+from coilshift.analysis.models.winding import winding_inductance
 
 # Medhurst (1947) self-capacitance factor H (pF per cm of coil diameter) against l/D for a
 # single-layer coil, table values as quoted from Wireless Engineer 24 (1947) 35-43 and 80-92.
@@ -261,17 +261,6 @@ def capacitance_for_frequency_nf(inductance_h: float, freq_hz: float) -> float:
     return 1e9 / ((2.0 * math.pi * freq_hz) ** 2 * inductance_h)
 
 
-def _pick_method(design: CoilDesign, mean_r: float, wire) -> str:
-    l, c = design.length_mm, design.depth_mm
-    if c == 0:
-        return "single_layer"
-    if max(l, c) <= 0.2 * mean_r:
-        return "thin_ring"
-    if l <= 0.25 * c or (wire is not None and l < 2.0 * wire.outer_diameter_mm):
-        return "flat_spiral"
-    return "multilayer"
-
-
 def analyse_coil(design: CoilDesign) -> CoilReport:
     """Inductance, wire length, resistance, self-capacitance and LC frequency of a coil.
 
@@ -290,7 +279,6 @@ def analyse_coil(design: CoilDesign) -> CoilReport:
         ``cap_nf`` (plus the self-capacitance when known).
     """
     wire = check_design(design)
-    n = float(design.turns)
     notes: list[str] = []
     inner_r = design.inner_diameter_mm / 2.0
     if design.depth_mm == 0:
@@ -299,65 +287,25 @@ def analyse_coil(design: CoilDesign) -> CoilReport:
             notes.append("no wire given: mean radius taken as the former radius")
     else:
         mean_r = inner_r + design.depth_mm / 2.0
-    method_key = _pick_method(design, mean_r, wire)
-    r_in, l_in, c_in = mean_r / 25.4, design.length_mm / 25.4, design.depth_mm / 25.4
-    exact = nagaoka = numeric = round_wire = None
-    if method_key == "single_layer":
-        wheeler = ind.wheeler_single_layer_uh(n, r_in, l_in)
-        in_range = design.length_mm > 0.8 * mean_r
-        exact = ind.current_sheet_h(n, mean_r * 1e-3, design.length_mm * 1e-3) * 1e6
-        nagaoka = ind.nagaoka_coefficient(design.length_mm / (2.0 * mean_r))
-        if in_range:
-            inductance, method = wheeler, "Wheeler 1928 single-layer solenoid"
-            note = "about 1 % for l > 0.8 r (Wheeler 1928)"
-        else:
-            inductance, method = exact, "current sheet (Lorenz; Nagaoka 1909)"
-            note = (f"l/r = {design.length_mm / mean_r:.2f} is outside Wheeler's stated range l > 0.8 r, so "
-                    f"the exact current-sheet value is used (Wheeler: {wheeler:.4g} uH)")
-        note += ("; exact_inductance_uh is the current sheet; neither includes the round-wire "
-                 "corrections (Rosa), see round_wire_inductance_uh")
-    else:
-        wheeler = ind.wheeler_multilayer_uh(n, r_in, l_in, c_in)
-        terms = (6.0 * r_in, 9.0 * l_in, 10.0 * c_in)
-        numeric = ind.uniform_section_h(n, inner_r * 1e-3, (inner_r + design.depth_mm) * 1e-3,
-                                        design.length_mm * 1e-3) * 1e6
-        numeric_method = "uniform-current-density filament sum (Maxwell)"
-        if method_key == "thin_ring":
-            inductance = ind.thin_ring_coil_h(n, mean_r * 1e-3, design.length_mm * 1e-3,
-                                              design.depth_mm * 1e-3) * 1e6
-            in_range = True
-            method = "thin ring, Maxwell GMD (Rosa & Grover 1912)"
-            note = ("section <= 0.2 r: neglected terms of order (section/r)^2, under about 1 %; "
-                    f"Wheeler multilayer would give {wheeler:.4g} uH (its terms are not comparable)")
-        elif method_key == "flat_spiral":
-            wheeler = ind.wheeler_flat_spiral_uh(n, r_in, c_in)
-            # Wheeler states about 1 % for c > 0.2 r; against a numerical thin-annulus sum we find
-            # within 2 % only for 0.3 r <= c <= 1.4 r (docs/models.md), so that is the range used
-            in_range = 0.3 * mean_r <= design.depth_mm <= 1.4 * mean_r
-            if in_range:
-                inductance, method = wheeler, "Wheeler 1928 flat spiral"
-                note = "about 1-2 % for 0.3 r <= c <= 1.4 r (Wheeler 1928; checked numerically)"
-            else:
-                inductance, method = numeric, numeric_method
-                note = (f"c/r = {design.depth_mm / mean_r:.2f} is outside the range where Wheeler's flat "
-                        f"spiral holds (0.3..1.4), so the numeric value is used (Wheeler: {wheeler:.4g} uH)")
-        else:
-            # "about 1 % when the three terms are comparable": numerically within 1 % up to a ratio 1.5
-            in_range = max(terms) <= 1.5 * min(terms)
-            if in_range:
-                inductance, method = wheeler, "Wheeler 1928 multilayer"
-                note = "about 1 % when 6r, 9l and 10c are comparable (Wheeler 1928)"
-            else:
-                inductance, method = numeric, numeric_method
-                note = (f"6r, 9l, 10c = {terms[0]:.3g}, {terms[1]:.3g}, {terms[2]:.3g} in are not comparable, "
-                        f"outside Wheeler's stated accuracy, so the numeric value is used "
-                        f"(Wheeler: {wheeler:.4g} uH)")
-        note += f"; numeric_inductance_uh is a {numeric_method}"
-    if wire is not None and n <= 20000:
-        round_wire = ind.round_wire_rings_h(n, inner_r * 1e-3, design.length_mm * 1e-3,
-                                            design.depth_mm * 1e-3, wire.outer_diameter_mm * 1e-3,
-                                            wire.bare_diameter_mm * 1e-3) * 1e6
+    lv = winding_inductance(design, mean_r, wire)
+    wire_length_m, resistance, per_km = _wire_length_and_resistance(design, mean_r, wire, notes)
+    cself, srf, lc, skin, q = _frequencies(design, lv.inductance_uh, mean_r, wire, resistance, notes)
+    return CoilReport(
+        design=design, method=lv.method, accuracy_note=lv.note, inductance_uh=float(lv.inductance_uh),
+        mean_radius_mm=mean_r, in_stated_range=bool(lv.in_range), wheeler_uh=float(lv.wheeler_uh),
+        exact_inductance_uh=lv.exact_uh, nagaoka_k=lv.nagaoka_k, numeric_inductance_uh=lv.numeric_uh,
+        round_wire_inductance_uh=lv.round_wire_uh,
+        wire_bare_diameter_mm=wire.bare_diameter_mm if wire else None,
+        wire_outer_diameter_mm=wire.outer_diameter_mm if wire else None,
+        wire_length_m=wire_length_m, resistance_ohm=resistance, resistance_per_km_ohm=per_km,
+        self_capacitance_pf=cself, srf_hz=srf, lc_freq_hz=lc, skin_depth_mm=skin, q_dc_bound=q,
+        notes=notes,
+    )
 
+
+def _wire_length_and_resistance(design: CoilDesign, mean_r: float, wire, notes: list[str]):
+    """Wire length (m), DC resistance (ohm) and resistance per km; appends a note without a wire."""
+    n = float(design.turns)
     # wire length: turns x mean circumference, each turn a helix step of the pitch in one layer
     pitch = design.length_mm / n if design.depth_mm == 0 else 0.0
     turn_mm = math.hypot(2.0 * math.pi * mean_r, pitch)
@@ -369,36 +317,30 @@ def analyse_coil(design: CoilDesign) -> CoilReport:
         per_km = per_m * 1000.0
     else:
         notes.append("no wire given: resistance not computed")
+    return wire_length_m, resistance, per_km
 
+
+def _frequencies(design: CoilDesign, inductance_uh: float, mean_r: float, wire, resistance, notes: list[str]):
+    """Self-capacitance (pF) and SRF of a single layer; LC frequency, skin depth and Q with ``cap_nf``."""
     cself = srf = None
     if design.depth_mm == 0:
         cself = medhurst_capacitance_pf(2.0 * mean_r, design.length_mm)
-        srf = lc_frequency_hz(inductance * 1e-6, cself * 1e-12)
+        srf = lc_frequency_hz(inductance_uh * 1e-6, cself * 1e-12)
         notes.append("self-capacitance by Medhurst (1947) for an isolated single-layer coil; "
                      "the SRF from it is a lumped estimate")
     lc = skin = q = None
     if design.cap_nf is not None:
         c_total = design.cap_nf * 1e-9 + (cself or 0.0) * 1e-12
-        lc = lc_frequency_hz(inductance * 1e-6, c_total)
+        lc = lc_frequency_hz(inductance_uh * 1e-6, c_total)
         if wire is not None:
             skin = wiremod.skin_depth_mm(lc, design.temp_c, wire.conductor)
-            q = 2.0 * math.pi * lc * inductance * 1e-6 / resistance
+            q = 2.0 * math.pi * lc * inductance_uh * 1e-6 / resistance
             if wire.bare_diameter_mm > 2.0 * skin:
                 notes.append(f"wire diameter exceeds twice the skin depth ({skin:.3g} mm) at {lc:.4g} Hz: "
                              f"AC resistance is higher than the DC value")
         if srf is not None and lc > 0.3 * srf:
             notes.append("operating frequency is above 0.3 x SRF: the effective inductance rises")
-    return CoilReport(
-        design=design, method=method, accuracy_note=note, inductance_uh=float(inductance),
-        mean_radius_mm=mean_r, in_stated_range=bool(in_range), wheeler_uh=float(wheeler),
-        exact_inductance_uh=exact, nagaoka_k=nagaoka, numeric_inductance_uh=numeric,
-        round_wire_inductance_uh=round_wire,
-        wire_bare_diameter_mm=wire.bare_diameter_mm if wire else None,
-        wire_outer_diameter_mm=wire.outer_diameter_mm if wire else None,
-        wire_length_m=wire_length_m, resistance_ohm=resistance, resistance_per_km_ohm=per_km,
-        self_capacitance_pf=cself, srf_hz=srf, lc_freq_hz=lc, skin_depth_mm=skin, q_dc_bound=q,
-        notes=notes,
-    )
+    return cself, srf, lc, skin, q
 
 
 def as_report(coil) -> CoilReport:

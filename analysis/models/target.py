@@ -27,7 +27,7 @@ import numpy as np
 from scipy.optimize import brentq
 from scipy.special import bernoulli
 
-from coilshift.logger.errors import InputError
+from coilshift.logger.errors import InputError, setting
 
 from coilshift.analysis.models.coil import CoilReport, as_report
 from coilshift.analysis.models.inductance import MU0_H_PER_M
@@ -244,7 +244,7 @@ class ShiftPrediction:
 def _operating_freq(rep: CoilReport, freq_hz) -> float:
     if freq_hz is None:
         if rep.lc_freq_hz is None:
-            raise InputError("coil: no operating frequency; give --freq-hz or a tuning capacitor (cap_nf)")
+            raise InputError(f"coil: no operating frequency; give {setting('freq_hz')} or a tuning capacitor (cap_nf)")
         return float(rep.lc_freq_hz)
     f = float(freq_hz)
     if not (math.isfinite(f) and f > 0):

@@ -8,34 +8,19 @@ is a falling frequency (inductance up), an upward triangle a rising one.
 
 from __future__ import annotations
 
-import io
 import math
 import os
 
-import matplotlib
+import numpy as np
+from matplotlib.ticker import FuncFormatter
 
-matplotlib.use("Agg")  # files only, never a window
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-from matplotlib.ticker import FuncFormatter  # noqa: E402
-
-from coilshift.logger.runfolder.atomic import write_bytes_atomic  # noqa: E402
-
-from coilshift.analysis.calibration.run import CalibrationResult, TargetResult  # noqa: E402
+from coilshift.analysis.calibration.run import CalibrationResult, TargetResult
+from coilshift.analysis.report.figures import COLORS, save_png, subplots
 
 #: at most this many points of a long log are drawn (min/max per bucket keeps the envelope)
 MAX_TRACE_POINTS = 20000
-_COLORS = plt.rcParams["axes.prop_cycle"].by_key()["color"]
-
-
-def _finish(fig, path) -> bytes:
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=110)
-    plt.close(fig)
-    data = buf.getvalue()
-    if path is not None:
-        write_bytes_atomic(path, data)
-    return data
+#: resolution of the calibration plots (the HTML report embeds them; the other plots use figures.DPI)
+DPI = 110
 
 
 def _plain_mm_ticks(ax) -> None:
@@ -47,7 +32,7 @@ def _plain_mm_ticks(ax) -> None:
 
 
 def _color(i: int) -> str:
-    return _COLORS[i % len(_COLORS)]
+    return COLORS[i % len(COLORS)]
 
 
 def _span(res: CalibrationResult) -> tuple[float, float]:
@@ -105,7 +90,7 @@ def _sign_legend(ax) -> None:
 
 def plot_curves(res: CalibrationResult, path: str | os.PathLike | None = None) -> bytes:
     """|shift| against distance on log-log axes: points with errors, fits, threshold, range."""
-    fig, ax = plt.subplots(figsize=(12, 6.2))
+    fig, ax = subplots(figsize=(12, 6.2))
     lo, hi = _span(res)
     d_grid = np.geomspace(lo, hi, 300)
     for i, t in enumerate(res.targets):
@@ -124,7 +109,7 @@ def plot_curves(res: CalibrationResult, path: str | os.PathLike | None = None) -
     ax.grid(True, which="both", alpha=0.3)
     ax.legend(fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0)
     fig.tight_layout()
-    return _finish(fig, path)
+    return save_png(fig, path, dpi=DPI)
 
 
 def _floor_axis(ax, res: CalibrationResult) -> None:
@@ -153,7 +138,7 @@ def _decimate(t: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 def plot_timeseries(res: CalibrationResult, path: str | os.PathLike | None = None) -> bytes:
     """Shift against time with target stretches shaded and the interpolated baseline drawn."""
-    fig, ax = plt.subplots(figsize=(11, 5))
+    fig, ax = subplots(figsize=(11, 5))
     log = res.log
     t, y = _decimate(log.t_s, log.freq_hz - res.baseline_hz)
     ax.plot(t, y, "-", color="0.25", lw=0.6, label="tracked frequency - baseline")
@@ -178,12 +163,12 @@ def plot_timeseries(res: CalibrationResult, path: str | os.PathLike | None = Non
     ax.grid(True, alpha=0.3)
     ax.legend(fontsize=8, loc="best")
     fig.tight_layout()
-    return _finish(fig, path)
+    return save_png(fig, path, dpi=DPI)
 
 
 def plot_residuals(res: CalibrationResult, path: str | os.PathLike | None = None) -> bytes:
     """Normalised residuals (measured - fit)/stderr of the dipole fits against distance."""
-    fig, ax = plt.subplots(figsize=(9, 4.5))
+    fig, ax = subplots(figsize=(9, 4.5))
     any_fit = False
     for i, t in enumerate(res.targets):
         if t.fit is None:
@@ -206,7 +191,7 @@ def plot_residuals(res: CalibrationResult, path: str | os.PathLike | None = None
     else:
         ax.text(0.5, 0.5, "no fitted curve", transform=ax.transAxes, ha="center")
     fig.tight_layout()
-    return _finish(fig, path)
+    return save_png(fig, path, dpi=DPI)
 
 
 def plot_compare(results: list[CalibrationResult], names: list[str],
@@ -219,7 +204,7 @@ def plot_compare(results: list[CalibrationResult], names: list[str],
                 targets.append(t.target)
     ncol = 1  # one target a row, legend to its right
     nrow = math.ceil(len(targets) / ncol)
-    fig, axes = plt.subplots(nrow, ncol, figsize=(12, 4.2 * nrow + 0.6), squeeze=False)
+    fig, axes = subplots(nrow, ncol, figsize=(12, 4.2 * nrow + 0.6), squeeze=False)
     for k, tname in enumerate(targets):
         ax = axes[k // ncol][k % ncol]
         lo, hi = 1e9, 0.0
@@ -254,4 +239,4 @@ def plot_compare(results: list[CalibrationResult], names: list[str],
         axes[k // ncol][k % ncol].set_visible(False)
     fig.suptitle("Runs compared (filled triangle down: frequency falls; open up: rises; diamond: range)")
     fig.tight_layout(rect=(0, 0, 1, 1 - 0.5 / fig.get_figheight()))
-    return _finish(fig, path)
+    return save_png(fig, path, dpi=DPI)

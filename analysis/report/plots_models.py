@@ -2,16 +2,11 @@
 
 from __future__ import annotations
 
-import io
 import os
 
-import matplotlib
+import numpy as np
 
-matplotlib.use("Agg")  # files only, never a window
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-
-from coilshift.logger.runfolder.atomic import write_bytes_atomic  # noqa: E402
+from coilshift.analysis.report.figures import save_png, subplots
 
 
 def plot_predicted_shift(distance_mm, shift_hz, path: str | os.PathLike, *, title: str,
@@ -26,7 +21,7 @@ def plot_predicted_shift(distance_mm, shift_hz, path: str | os.PathLike, *, titl
     d = np.asarray(distance_mm, float)
     s = np.asarray(shift_hz, float)
     ok = (d > 0) & (np.abs(s) > 0)
-    fig, ax = plt.subplots(figsize=(8, 5.5))
+    fig, ax = subplots(figsize=(8, 5.5))
     sign = "frequency rises" if np.nanmedian(s[ok]) > 0 else "frequency falls"
     ax.plot(d[ok], np.abs(s[ok]), color="tab:blue", lw=1.8, label=f"full winding ({sign})")
     if closed_form_hz is not None:
@@ -48,7 +43,4 @@ def plot_predicted_shift(distance_mm, shift_hz, path: str | os.PathLike, *, titl
     ax.grid(True, which="both", alpha=0.3)
     ax.legend(fontsize=9, loc="lower left")
     fig.tight_layout()
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=120)
-    plt.close(fig)
-    write_bytes_atomic(path, buf.getvalue())
+    save_png(fig, path)

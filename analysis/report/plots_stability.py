@@ -2,35 +2,22 @@
 
 from __future__ import annotations
 
-import io
 import os
 
-import matplotlib
+import numpy as np
 
-matplotlib.use("Agg")  # files only, never a window
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-
-from coilshift.logger.runfolder.atomic import write_bytes_atomic  # noqa: E402
-
-from coilshift.analysis.stability.analyse import StabilityResult  # noqa: E402
+from coilshift.analysis.report.figures import save_png, subplots
+from coilshift.analysis.stability.analyse import StabilityResult
 
 # slope of sigma_y(tau) on log-log axes per noise type (SP 1065 Table 11; modified ADEV for PM)
 _REFERENCE_SLOPES = (("white FM", -0.5), ("flicker FM", 0.0), ("random-walk FM", 0.5),
                      ("white PM (MDEV)", -1.5), ("drift", 1.0))
 
 
-def _save(fig, path) -> None:
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=120)
-    plt.close(fig)
-    write_bytes_atomic(path, buf.getvalue())
-
-
 def plot_sigma_tau(result: StabilityResult, path: str | os.PathLike) -> None:
     """Log-log Allan, overlapping Allan and modified Allan deviation (Hz, fractional on the right)
     with their confidence intervals as error bars and dashed reference slopes."""
-    fig, ax = plt.subplots(figsize=(8.5, 6))
+    fig, ax = subplots(figsize=(8.5, 6))
     tau = result.tau_s
     styles = (("adev", "ADEV (non-overlapping)", "o", "tab:blue"),
               ("oadev", "overlapping ADEV", "s", "tab:orange"),
@@ -78,14 +65,14 @@ def plot_sigma_tau(result: StabilityResult, path: str | os.PathLike) -> None:
         ax.set_ylim(lo_y / 1.5, hi_y * 1.5)
     ax.legend(fontsize=8, loc="best", ncol=2)
     fig.tight_layout()
-    _save(fig, path)
+    save_png(fig, path)
 
 
 def plot_drift(result: StabilityResult, path: str | os.PathLike) -> None:
     """Frequency vs time with the drift line, gaps left blank, and the warm-up marker;
     the local drift rate per window below."""
     series = result.series
-    fig, (ax, ax2) = plt.subplots(2, 1, figsize=(8.5, 6.5), sharex=True,
+    fig, (ax, ax2) = subplots(2, 1, figsize=(8.5, 6.5), sharex=True,
                                   gridspec_kw={"height_ratios": [2.2, 1]})
     t = series.t_s - series.t0_s
     f = series.freq_hz
@@ -134,4 +121,4 @@ def plot_drift(result: StabilityResult, path: str | os.PathLike) -> None:
     ax2.legend(fontsize=8, loc="best")
     ax2.grid(True, alpha=0.3)
     fig.tight_layout()
-    _save(fig, path)
+    save_png(fig, path)

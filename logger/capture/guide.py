@@ -19,7 +19,7 @@ import time
 from dataclasses import dataclass, field
 from typing import Callable
 
-from coilshift.logger.errors import InputError
+from coilshift.logger.errors import InputError, setting
 from coilshift.logger.runfolder.markers import BASELINE, Marker
 
 UNITS_MM = {"mm": 1.0, "cm": 10.0, "in": 25.4}
@@ -40,20 +40,21 @@ def parse_distances(text: str, unit: str = "mm") -> list[float]:
     Raises InputError for an unknown unit, a non-number, a negative value or a repeat.
     """
     if unit not in UNITS_MM:
-        raise InputError(f"--unit {unit}: use one of {', '.join(UNITS_MM)}")
+        raise InputError(f"{setting('unit')} {unit}: use one of {', '.join(UNITS_MM)}")
     out = []
     for part in filter(None, (p.strip() for p in str(text).split(","))):
         try:
             x = float(part)
         except ValueError:
-            raise InputError(f"--distances {text}: {part!r} is not a number") from None
+            raise InputError(f"{setting('distances')} {text}: {part!r} is not a number") from None
         if not math.isfinite(x) or x < 0:
-            raise InputError(f"--distances {text}: {part!r} must be zero or positive")
+            raise InputError(f"{setting('distances')} {text}: {part!r} must be zero or positive")
         out.append(x * UNITS_MM[unit])
     if not out:
-        raise InputError(f"--distances {text!r}: give at least one distance, e.g. 10,20,40,80")
+        raise InputError(f"{setting('distances')} {text!r}: give at least one distance, e.g. 10,20,40,80")
     if len(set(out)) != len(out):
-        raise InputError(f"--distances {text}: a distance is listed twice (use --repeats to repeat)")
+        raise InputError(f"{setting('distances')} {text}: a distance is listed twice "
+                         f"(use {setting('repeats')} to repeat)")
     return out
 
 
@@ -75,14 +76,14 @@ class Stretch:
 def _check_name(name: str) -> str:
     n = " ".join(str(name).split())
     if not n:
-        raise InputError("--target: empty target name")
+        raise InputError(f"{setting('targets')}: empty target name")
     if n.lower() in (BASELINE, "end"):
-        raise InputError(f"--target {n}: '{n}' is reserved; name the target by what it is")
+        raise InputError(f"{setting('targets')} {n}: '{n}' is reserved; name the target by what it is")
     if "," in n or '"' in n:
-        raise InputError(f"--target {n}: no commas or quotes in a target name")
+        raise InputError(f"{setting('targets')} {n}: no commas or quotes in a target name")
     if n[-1].isdigit():
         # a live marker label is 'NAME DISTANCE': a trailing number would be read as the distance
-        raise InputError(f"--target {n}: a name must not end in a digit (e.g. 'M8 bolt', not 'bolt M8')")
+        raise InputError(f"{setting('targets')} {n}: a name must not end in a digit (e.g. 'M8 bolt', not 'bolt M8')")
     return n
 
 
@@ -94,14 +95,14 @@ def plan_session(targets: list[str], distances_mm: list[float], repeats: int = 1
     and distance: target stretch, baseline stretch.
     """
     if not targets:
-        raise InputError("give at least one --target")
+        raise InputError(f"give at least one {setting('targets')}")
     names = [_check_name(t) for t in targets]
     if len(set(names)) != len(names):
-        raise InputError("--target: a target is listed twice")
+        raise InputError(f"{setting('targets')}: a target is listed twice")
     if not (math.isfinite(dwell_s) and dwell_s > 0):
-        raise InputError(f"--dwell {dwell_s}: must be positive seconds")
+        raise InputError(f"{setting('dwell_s')} {dwell_s}: must be positive seconds")
     if repeats < 1:
-        raise InputError(f"--repeats {repeats}: must be at least 1")
+        raise InputError(f"{setting('repeats')} {repeats}: must be at least 1")
     first = FIRST_BASELINE_FACTOR * dwell_s if first_baseline_s is None else float(first_baseline_s)
     plan = [Stretch(BASELINE, math.nan, first, 0)]
     for r in range(1, repeats + 1):
@@ -169,7 +170,7 @@ class CalibrationGuide:
                  ask: Callable[[str], str] = input, say: Callable[[str], None] = print,
                  sleep: Callable[[float], None] = time.sleep, unit: str = "mm"):
         if not (math.isfinite(settle_s) and settle_s >= 0):
-            raise InputError(f"--settle {settle_s}: must be zero or positive seconds")
+            raise InputError(f"{setting('settle_s')} {settle_s}: must be zero or positive seconds")
         self.engine = engine
         self.plan = list(plan)
         self.settle_s = float(settle_s)

@@ -19,7 +19,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from coilshift.logger.runfolder import flags as _flags
-from coilshift.logger.errors import InputError
+from coilshift.logger.errors import InputError, setting
 from coilshift.logger.runfolder.frames import FrameTable
 from coilshift.logger.runfolder.markers import Marker
 
@@ -62,7 +62,7 @@ def baseline_from_start(frames: FrameTable, seconds: float = 2.0, name: str = "r
     sel = _good(frames, frames.t_s <= seconds)
     if not sel.any():
         raise InputError(f"{name}: no usable tone in the first {seconds:g} s to set the baseline "
-                         f"(choose another --baseline-s or give markers with baseline rows)")
+                         f"(choose another {setting('baseline_s')} or give markers with baseline rows)")
     f = frames.freq_hz[sel]
     return Baseline(float(np.median(f)), METHOD_START,
                     {"window_s": float(seconds), "frames_used": int(len(f)), "spread_hz": _spread(f),

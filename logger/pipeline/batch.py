@@ -6,29 +6,33 @@ frames, ~15 MB) and are collected whole. Only then is anything written: that way
 known before the first row (so ``shift_hz`` is right in every row), a recording with no tone is
 refused without leaving a useless folder behind, and a failure while writing removes what this
 command created instead of leaving a half run that looks complete.
+
+The frames go through the same post-processing as a live capture's
+(:mod:`coilshift.logger.pipeline.stage`) and their run.json is built by the same builder
+(:mod:`coilshift.logger.pipeline.runmeta`).
 """
 
 from __future__ import annotations
 
 import os
-import shutil
 from pathlib import Path
 from typing import Callable
 
 import numpy as np
 
-from coilshift.logger.runfolder import flags as _flags
+from coilshift.logger.errors import InputError, setting
 from coilshift.logger.pipeline.baseline import Baseline, baseline_from_markers, baseline_from_start
 from coilshift.logger.pipeline.corrections import Corrections, clock_ppm_from_tone, level_warnings
-from coilshift.logger.errors import InputError
+from coilshift.logger.pipeline.runmeta import baseline_meta, run_meta, tracker_meta
+from coilshift.logger.pipeline.stage import FrameStage, LogFeed
+from coilshift.logger.runfolder import columns as _columns
+from coilshift.logger.runfolder import flags as _flags
+from coilshift.logger.runfolder.folders import MARKERS_NAME, refuse_existing, replacing_run
 from coilshift.logger.runfolder.frames import FrameTable
 from coilshift.logger.runfolder.markers import Marker, check_within, markers_to_csv, read_markers
-from coilshift.logger.runfolder.writer import (META_NAME, RUN_FILES, UNITS, RunWriter, prepare_run_dir, utc_iso,
-                     write_markers_copy)
+from coilshift.logger.runfolder.writer import RunWriter, write_markers_copy
 
 ProgressFn = Callable[[float, float], None]
-
-_WRITE_BATCH = 20000  # rows per RunWriter.append: bounded line buffer, few syscalls
 
 #: seconds of audio handed to the tracker at a time when replaying a file
 REPLAY_BLOCK_S = 8
@@ -37,14 +41,6 @@ REPLAY_BLOCK_S = 8
 def source_name(source) -> str:
     """The name to put in front of an error about ``source`` (its path, or its kind)."""
     return str(getattr(source, "name", None) or source.describe().get("kind", "source"))
-
-
-def _refuse_existing(run_dir: Path, force: bool) -> None:
-    # the same refusal prepare_run_dir makes, but before hours of tracking rather than after
-    if run_dir.exists() and not run_dir.is_dir():
-        raise InputError(f"{run_dir}: exists and is not a folder")
-    if run_dir.is_dir() and any(run_dir.iterdir()) and not force:
-        raise InputError(f"{run_dir}: folder exists and is not empty (use --force to replace its run files)")
 
 
 def run_tracker(source, settings, progress: ProgressFn | None = None) -> tuple[FrameTable, object]:
@@ -111,7 +107,7 @@ def track_source(source, settings, corrections: Corrections | None, run_dir: str
 
     Parameters
     ----------
-    source : an opened source (:func:`coilshift.logger.sources.recorded.open_source`, or
+    source : an opened source (:func:`coilshift.logger.sources.open_source`, or
         :class:`coilshift.logger.sources.synthetic.ToneSource`)
     settings : :class:`coilshift.logger.tracking.tracker.TrackerSettings` (band and near frequency in the
         recording's raw Hz; see :meth:`Corrections.freq_to_raw`)
@@ -137,9 +133,9 @@ def track_source(source, settings, corrections: Corrections | None, run_dir: str
     corrections = corrections or Corrections()
     run_dir = Path(run_dir)
     name = source_name(source)
-    _refuse_existing(run_dir, force)
+    refuse_existing(run_dir, force)  # before hours of tracking rather than after
     if not baseline_s > 0:
-        raise InputError(f"baseline window (--baseline-s) must be positive, got {baseline_s:g} s")
+        raise InputError(f"baseline window ({setting('baseline_s')}) must be positive, got {baseline_s:g} s")
     marker_list, markers_name = _load_markers(markers)
     fs = float(source.sample_rate_hz)
     duration_s = float(corrections.time_to_true(source.duration_s))
@@ -149,69 +145,63 @@ def track_source(source, settings, corrections: Corrections | None, run_dir: str
     raw, tracker = run_tracker(source, settings, progress)
     warnings = corrections.warnings(raw, fs)
     warnings += level_warnings(raw)
-    frames = corrections.apply(raw, fs)
-    if source.amp_offset_db:
-        frames.amp_dbfs = frames.amp_dbfs + source.amp_offset_db
+    frames = FrameStage(fs, corrections, source.amp_offset_db).apply(raw)
+    has_tone = _tone_frames(frames, name)
+    base = _choose_baseline(frames, marker_list, baseline_s, name, markers_name, warnings)
+
+    start, start_how = source.start_time(duration_s)
+    meta = run_meta(start, created_by="coilshift track", start_utc_from=start_how, source=source.describe(),
+                    sample_rate_hz=fs, sample_rate_true_hz=corrections.true_sample_rate_hz(fs),
+                    duration_s=duration_s, tracker=tracker_meta(settings, tracker),
+                    corrections=corrections.to_dict(), baseline=baseline_meta(base),
+                    units=_columns.units(amp_dbfs=source.amp_reference),
+                    markers={"file": MARKERS_NAME, "count": len(marker_list)} if marker_list else None,
+                    warnings=warnings)
+    totals = {"frames": len(frames), "tone_frames": int(has_tone.sum()), "duration_s": duration_s}
+    _write_run(run_dir, force, meta, frames, marker_list, totals)
+    return _summary(run_dir, frames, has_tone, base, meta, source, corrections)
+
+
+def _tone_frames(frames: FrameTable, name: str) -> np.ndarray:
+    """Mask of the frames with a tone; refuses a recording that has none."""
     has_tone = np.isfinite(frames.freq_hz) & ((frames.flags & (_flags.NO_TONE | _flags.OUT_OF_BAND)) == 0)
     if not has_tone.any():
         if np.any(frames.flags & _flags.OUT_OF_BAND):
             raise InputError(f"{name}: no tone inside the requested band in any of {len(frames)} frames")
         raise InputError(f"{name}: no tone found in any of {len(frames)} frames (silence or noise only; "
                          f"check the channel and the input level)")
-    base = _choose_baseline(frames, marker_list, baseline_s, name, markers_name, warnings)
+    return has_tone
 
-    start, start_how = source.start_time(duration_s)
-    units = dict(UNITS)
-    units["amp_dbfs"] = source.amp_reference
-    tracker_meta = settings.to_dict() if hasattr(settings, "to_dict") else dict(vars(settings))
-    tracker_meta.update(frame_len=int(tracker.frame_len), hop_len=int(tracker.hop_len))
-    meta = {
-        "created_by": "coilshift track",
-        "start_utc": utc_iso(start),
-        "start_utc_from": start_how,
-        "source": source.describe(),
-        "sample_rate_hz": fs,
-        "sample_rate_true_hz": corrections.true_sample_rate_hz(fs),
-        "duration_s": duration_s,
-        "tracker": tracker_meta,
-        "corrections": corrections.to_dict(),
-        "baseline": {"freq_hz": base.freq_hz, "method": base.method, **base.details},
-        "units": units,
-        "markers": {"file": "markers.csv", "count": len(marker_list)} if marker_list else None,
-        "warnings": warnings,
-    }
-    shift = frames.freq_hz[has_tone] - base.freq_hz
-    totals = {"frames": len(frames), "tone_frames": int(has_tone.sum()), "duration_s": duration_s}
 
-    existed = run_dir.exists()
-    kept = _set_aside(run_dir) if existed else []
-    writer = None
-    try:
-        prepare_run_dir(run_dir, force)
-        writer = RunWriter(run_dir, meta)
-        for i in range(0, len(frames), _WRITE_BATCH):
-            writer.append(frames.select(slice(i, i + _WRITE_BATCH)))
-        if marker_list:
-            write_markers_copy(run_dir, markers_to_csv(marker_list))
-        writer.close(totals, status="complete")
-    except BaseException:
-        if writer is not None:
+def _write_run(run_dir: Path, force: bool, meta: dict, frames: FrameTable, marker_list: list[Marker],
+               totals: dict) -> None:
+    """Write the run folder all or nothing (an old run replaced under force comes back on failure)."""
+    with replacing_run(run_dir, force) as folder:
+        writer = RunWriter(folder, meta)
+        try:
+            feed = LogFeed(writer)  # the baseline is in meta already: no window to wait for
+            feed.emit(frames)
+            feed.finish()
+            if marker_list:
+                write_markers_copy(folder, markers_to_csv(marker_list))
+            writer.close(totals, status="complete")
+        except BaseException:
             try:
                 writer.close(totals, status="failed")
             except Exception:
                 pass
-        _remove_created(run_dir, existed)
-        for old, new in kept:  # the previous run comes back as it was
-            os.replace(new, old)
-        raise
-    for _old, new in kept:
-        new.unlink()
+            raise
 
+
+def _summary(run_dir: Path, frames: FrameTable, has_tone: np.ndarray, base: Baseline, meta: dict, source,
+             corrections: Corrections) -> dict:
+    fs = meta["sample_rate_hz"]
+    shift = frames.freq_hz[has_tone] - base.freq_hz
     return {
         "run_dir": str(run_dir),
         "frames": len(frames),
         "tone_frames": int(has_tone.sum()),
-        "duration_s": duration_s,
+        "duration_s": meta["duration_s"],
         "sample_rate_hz": fs,
         "sample_rate_true_hz": corrections.true_sample_rate_hz(fs),
         "baseline_hz": base.freq_hz,
@@ -221,40 +211,11 @@ def track_source(source, settings, corrections: Corrections | None, run_dir: str
         "shift_min_hz": float(shift.min()),
         "shift_max_hz": float(shift.max()),
         "flag_counts": _flag_counts(frames.flags),
-        "warnings": warnings,
+        "warnings": meta["warnings"],
         "start_utc": meta["start_utc"],
-        "start_utc_from": start_how,
+        "start_utc_from": meta["start_utc_from"],
         "amplitude_reference": source.amp_reference,
     }
-
-
-def _set_aside(run_dir: Path) -> list[tuple[Path, Path]]:
-    """Rename an old run's files (replaced under --force) so a failed write can put them back."""
-    kept = []
-    for fname in RUN_FILES:
-        old = run_dir / fname
-        if old.is_file():
-            new = run_dir / f".{fname}.replaced-{os.getpid()}"
-            os.replace(old, new)
-            kept.append((old, new))
-    return kept
-
-
-def _remove_created(run_dir: Path, existed: bool) -> None:
-    """Undo a failed write: the folder if this run made it, else just the run's own files."""
-    if not existed:
-        shutil.rmtree(run_dir, ignore_errors=True)
-        return
-    for fname in RUN_FILES:
-        try:
-            (run_dir / fname).unlink()
-        except OSError:
-            pass
-    for tmp in run_dir.glob(f".{META_NAME}.*.tmp"):
-        try:
-            tmp.unlink()
-        except OSError:
-            pass
 
 
 def measure_clock(source, reference_hz: float, settings, progress: ProgressFn | None = None,

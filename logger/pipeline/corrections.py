@@ -28,7 +28,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from coilshift.logger.runfolder import flags as _flags
-from coilshift.logger.errors import InputError
+from coilshift.logger.errors import InputError, setting
 from coilshift.logger.runfolder.frames import FrameTable
 
 #: a frame level below this (median over frames with a tone) earns a low-level warning; at
@@ -55,11 +55,11 @@ class Corrections:
 
     def __post_init__(self) -> None:
         if not np.isfinite(self.clock_ppm) or abs(self.clock_ppm) >= 1e5:
-            raise InputError(f"clock correction (--clock-ppm): {self.clock_ppm} ppm is not a plausible clock error")
+            raise InputError(f"clock correction ({setting('clock_ppm')}): {self.clock_ppm} ppm is not a plausible clock error")
         if int(self.divide) != self.divide or self.divide < 1:
-            raise InputError(f"prescaler (--divide): ratio must be a whole number >= 1, got {self.divide}")
+            raise InputError(f"prescaler ({setting('divide')}): ratio must be a whole number >= 1, got {self.divide}")
         if int(self.nyquist_zone) != self.nyquist_zone or self.nyquist_zone < 1:
-            raise InputError(f"Nyquist zone (--nyquist-zone) must be a whole number >= 1, got {self.nyquist_zone}")
+            raise InputError(f"Nyquist zone ({setting('nyquist_zone')}) must be a whole number >= 1, got {self.nyquist_zone}")
         object.__setattr__(self, "divide", int(self.divide))
         object.__setattr__(self, "nyquist_zone", int(self.nyquist_zone))
 
@@ -110,10 +110,9 @@ class Corrections:
     def apply(self, frames: FrameTable, sample_rate_hz: float) -> FrameTable:
         """Return a new table with true times and oscillator frequencies (NaN stays NaN)."""
         if self.is_identity:
-            return FrameTable(frames.t_s.copy(), frames.freq_hz.copy(), frames.amp_dbfs.copy(),
-                              frames.snr_db.copy(), frames.flags.copy())
-        return FrameTable(self.time_to_true(frames.t_s), self.freq_to_true(frames.freq_hz, sample_rate_hz),
-                          frames.amp_dbfs.copy(), frames.snr_db.copy(), frames.flags.copy())
+            return frames.replace()
+        return frames.replace(t_s=self.time_to_true(frames.t_s),
+                              freq_hz=self.freq_to_true(frames.freq_hz, sample_rate_hz))
 
     def warnings(self, raw_frames: FrameTable | None = None, sample_rate_hz: float | None = None) -> list[str]:
         """Warnings the user must see: inverted shift sign, tones at a zone edge (ambiguous)."""

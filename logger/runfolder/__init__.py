@@ -1,3 +1,3 @@
-"""The run folder, the one file format of coilshift: log.csv columns, run.json, markers.csv,
-frame flags, crash-safe writing and reading. Imports only the standard library, NumPy, pandas
-and :mod:`coilshift.logger.errors`."""
+"""The run folder, the one file format of coilshift: the log.csv column table, frame tables,
+run.json, markers.csv, frame flags, run and output folders, crash-safe writing and reading.
+Imports only the standard library, NumPy, pandas and :mod:`coilshift.logger.errors`."""

@@ -19,11 +19,12 @@ import pandas as pd
 
 from coilshift.logger.runfolder import flags as _flags
 from coilshift.logger.errors import InputError
+from coilshift.logger.runfolder.columns import FLAG_COLUMNS, NUMERIC
+from coilshift.logger.runfolder.folders import LOG_NAME, MARKERS_NAME, META_NAME
 from coilshift.logger.runfolder.markers import Marker, read_markers
-from coilshift.logger.runfolder.writer import LOG_NAME, MARKERS_NAME, META_NAME
 
+#: columns every log must have (a bare CSV from another instrument too)
 REQUIRED = ("t_s", "freq_hz")
-NUMERIC = ("t_s", "freq_hz", "shift_hz", "amp_dbfs", "snr_db")
 
 
 @dataclass
@@ -163,9 +164,9 @@ def read_log(path: str | os.PathLike, columns: tuple[str, ...] | None = None) ->
     missing = [c for c in REQUIRED if c not in header]
     if missing:
         raise InputError(f"{log_path}: no {' or '.join(missing)} column (a log needs t_s and freq_hz)")
-    wanted = list(REQUIRED) + [c for c in (columns or NUMERIC + ("flags",)) if c not in REQUIRED]
+    wanted = list(REQUIRED) + [c for c in (columns or NUMERIC + FLAG_COLUMNS) if c not in REQUIRED]
     use = [c for c in wanted if c in header]
-    dtypes = {c: ("category" if c == "flags" else "float64") for c in use if c in NUMERIC or c == "flags"}
+    dtypes = {c: ("category" if c in FLAG_COLUMNS else "float64") for c in use if c in NUMERIC + FLAG_COLUMNS}
     try:
         with open(log_path, "rb") as fh:
             # read only whole lines: an interrupted writer may have left half a row at the end
@@ -178,10 +179,11 @@ def read_log(path: str | os.PathLike, columns: tuple[str, ...] | None = None) ->
     except (ValueError, UnicodeDecodeError) as exc:
         first = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         raise InputError(f"{log_path}: non-numeric or unreadable value in a column ({first})") from None
-    if "flags" in table:
-        cats = table["flags"].cat.categories
-        codes = np.array([_flags.from_text(str(c)) for c in cats] + [0], dtype=np.int64)
-        table["flags"] = codes[table["flags"].cat.codes.to_numpy()]  # code -1 (empty) -> last -> 0
+    for name in FLAG_COLUMNS:
+        if name in table:
+            cats = table[name].cat.categories
+            codes = np.array([_flags.from_text(str(c)) for c in cats] + [0], dtype=np.int64)
+            table[name] = codes[table[name].cat.codes.to_numpy()]  # code -1 (empty) -> last -> 0
     t = table["t_s"].to_numpy(float)
     if len(t) == 0:
         raise InputError(f"{log_path}: the log has no rows")

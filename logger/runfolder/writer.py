@@ -1,16 +1,9 @@
 """The shift log: a run folder with ``log.csv`` (rows) and ``run.json`` (metadata).
 
-``log.csv`` columns (header row first, one frame a row, whole lines only)::
-
-    t_s,utc,freq_hz,shift_hz,amp_dbfs,snr_db,flags
-
-* ``t_s``      seconds from the start of the recording to the frame centre
-* ``utc``      ISO 8601 UTC time of the frame centre (``start_utc`` + ``t_s``)
-* ``freq_hz``  tracked frequency after corrections (empty when no tone)
-* ``shift_hz`` ``freq_hz`` minus the baseline frequency
-* ``amp_dbfs`` tone amplitude in dB re full-scale sine
-* ``snr_db``   tone-to-noise ratio in the frame, dB
-* ``flags``    ``;``-separated words from :mod:`coilshift.logger.runfolder.flags` (empty when clean)
+``log.csv`` has a header row first, then one frame a row, whole lines only; its columns, their
+units and their text format are the table in :mod:`coilshift.logger.runfolder.columns`
+(``t_s,utc,freq_hz,shift_hz,amp_dbfs,snr_db,flags`` today). ``utc`` and ``shift_hz`` are
+computed here, from ``t_s`` and ``start_utc`` and from ``freq_hz`` and the baseline.
 
 ``run.json`` is written before the first row (``"status": "running"``) and replaced
 atomically at the end (``"status": "complete"`` with totals). Rows are appended, flushed
@@ -22,30 +15,20 @@ from __future__ import annotations
 
 import datetime as _dt
 import os
-import shutil
 import time
 from pathlib import Path
 
 import numpy as np
 
-from coilshift.logger.runfolder import flags as _flags
 from coilshift.logger.runfolder.atomic import write_json_atomic, write_text_atomic
-from coilshift.logger.errors import InputError
+from coilshift.logger.runfolder.columns import COLUMNS, FLAGS, LOG_COLUMNS, UNITS, RowContext, cells
+from coilshift.logger.runfolder.folders import LOG_NAME, MARKERS_NAME, META_NAME
 from coilshift.logger.runfolder.frames import FrameTable
 
 FORMAT_NAME = "coilshift-run"
 FORMAT_VERSION = 1
-LOG_NAME = "log.csv"
-META_NAME = "run.json"
-MARKERS_NAME = "markers.csv"
-LOG_COLUMNS = ("t_s", "utc", "freq_hz", "shift_hz", "amp_dbfs", "snr_db", "flags")
 #: bytes set aside while a run is written, so the final run.json fits on a disk that fills up
 RESERVE_BYTES = 64 * 1024
-#: files a run folder may hold that --force is allowed to replace
-RUN_FILES = (LOG_NAME, META_NAME, MARKERS_NAME)
-
-UNITS = {"t_s": "s", "utc": "ISO 8601 UTC", "freq_hz": "Hz", "shift_hz": "Hz",
-         "amp_dbfs": "dB re full-scale sine", "snr_db": "dB", "flags": "words"}
 
 
 def software_version() -> str:
@@ -57,49 +40,12 @@ def software_version() -> str:
         return "unknown"
 
 
-def utc_iso(t: _dt.datetime) -> str:
-    """ISO 8601 with milliseconds and a Z, e.g. ``2026-12-01T18:01:08.123Z``."""
-    t = t.astimezone(_dt.timezone.utc)
-    return t.strftime("%Y-%m-%dT%H:%M:%S.") + f"{t.microsecond // 1000:03d}Z"
-
-
-def prepare_run_dir(run_dir: str | os.PathLike, force: bool = False) -> Path:
-    """Create ``run_dir`` for a new run; refuse an existing non-empty folder unless ``force``.
-
-    With ``force`` only the run's own files (log.csv, run.json, markers.csv) are removed;
-    anything else the user keeps there is left alone.
-    """
-    run_dir = Path(run_dir)
-    if run_dir.exists() and not run_dir.is_dir():
-        raise InputError(f"{run_dir}: exists and is not a folder")
-    if run_dir.is_dir() and any(run_dir.iterdir()):
-        if not force:
-            raise InputError(f"{run_dir}: folder exists and is not empty (use --force to replace its run files)")
-        for name in RUN_FILES:
-            p = run_dir / name
-            if p.is_file():
-                p.unlink()
-            elif p.is_dir():
-                shutil.rmtree(p)
-    try:
-        run_dir.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise InputError(f"{run_dir}: cannot create folder ({exc.strerror})") from None
-    if not os.access(run_dir, os.W_OK):
-        raise InputError(f"{run_dir}: folder is not writable")
-    return run_dir
-
-
-def _fmt(x: float, digits: int) -> str:
-    return "" if not np.isfinite(x) else f"{x:.{digits}f}"
-
-
 class RunWriter:
     """Append frames to a run folder's log.csv; keep run.json current.
 
     Parameters
     ----------
-    run_dir : folder prepared by :func:`prepare_run_dir`
+    run_dir : folder prepared by :func:`~coilshift.logger.runfolder.folders.prepare_run_dir`
     meta : metadata for run.json (source, sample_rate_hz, tracker, corrections, baseline, ...);
         ``start_utc`` is required as an ISO 8601 string.
     fsync_interval_s : how often appended rows are forced to disk.
@@ -144,16 +90,12 @@ class RunWriter:
         """Write whole rows for ``frames``, flush, and fsync if the interval has passed."""
         if len(frames) == 0:
             return
-        lines = []
-        base = self._start
-        for t, f, a, s, fl in zip(frames.t_s, frames.freq_hz, frames.amp_dbfs, frames.snr_db, frames.flags):
-            words = _flags.to_text(int(fl))
-            if words:
-                for w in words.split(";"):
-                    self._flag_counts[w] = self._flag_counts.get(w, 0) + 1
-            stamp = utc_iso(base + _dt.timedelta(seconds=float(t)))
-            lines.append(f"{t:.6f},{stamp},{_fmt(f, 6)},{_fmt(f - self.baseline_hz, 6)},"
-                         f"{_fmt(a, 2)},{_fmt(s, 2)},{words}\n")
+        context = RowContext(self._start, self.baseline_hz)
+        columns = [cells(c, frames, context) for c in COLUMNS]
+        for c, texts in zip(COLUMNS, columns):
+            if c.kind == FLAGS:
+                self._count_flags(texts)
+        lines = [",".join(row) + "\n" for row in zip(*columns)]
         if self._write_error is not None:
             # after a failed write the file may end in part of a row: never append behind it
             raise self._write_error
@@ -168,6 +110,13 @@ class RunWriter:
         except OSError as exc:  # disk full, folder gone, ...: say which file
             self._write_error = self._named(exc)
             raise self._write_error from None
+
+    def _count_flags(self, texts: list[str]) -> None:
+        counts = self._flag_counts
+        for words in texts:
+            if words:
+                for w in words.split(";"):
+                    counts[w] = counts.get(w, 0) + 1
 
     def _named(self, exc: OSError) -> OSError:
         if exc.filename:

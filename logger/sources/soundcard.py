@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import math
 
-from coilshift.logger.errors import InputError
+from coilshift.logger.errors import InputError, setting
 
 #: what to install when PortAudio itself is missing (the Python package is a dependency)
 PORTAUDIO_HINT = ("the PortAudio library is not installed: install it with your package manager "
@@ -82,7 +82,7 @@ def resolve_device(device: str | int | None) -> dict:
         for d in devices:
             if d["index"] == idx:
                 return d
-        raise InputError(f"--device {text}: no input device with that index (see 'coilshift devices')")
+        raise InputError(f"{setting('device')} {text}: no input device with that index (see 'coilshift devices')")
     exact = [d for d in devices if d["name"].lower() == text.lower()]
     if exact:
         return exact[0]
@@ -90,13 +90,14 @@ def resolve_device(device: str | int | None) -> dict:
     if len(part) == 1:
         return part[0]
     if not part:
-        raise InputError(f"--device {text}: no input device matches (see 'coilshift devices')")
+        raise InputError(f"{setting('device')} {text}: no input device matches (see 'coilshift devices')")
     names = ", ".join(f"{d['index']}: {d['name']}" for d in part[:5])
-    raise InputError(f"--device {text}: matches several input devices ({names}); give the index")
+    raise InputError(f"{setting('device')} {text}: matches several input devices ({names}); give the index")
 
 
 class SoundcardSource:
-    """A live soundcard input as a block source for :class:`coilshift.logger.capture.engine.CaptureEngine`.
+    """A live soundcard input as a block source for :class:`coilshift.logger.capture.engine.CaptureEngine`
+    (the :class:`~coilshift.logger.sources.protocol.BlockSource` interface).
 
     Parameters
     ----------
@@ -111,14 +112,14 @@ class SoundcardSource:
                  latency: str | float = "high", blocksize: int = 0):
         self.info = resolve_device(device)
         if channel < 0:
-            raise InputError(f"--channel {channel}: channels count from 0")
+            raise InputError(f"{setting('channel')} {channel}: channels count from 0")
         if channel >= self.info["max_input_channels"]:
-            raise InputError(f"--channel {channel}: device {self.info['name']!r} has "
+            raise InputError(f"{setting('channel')} {channel}: device {self.info['name']!r} has "
                              f"{self.info['max_input_channels']} input channel(s) (0..{self.info['max_input_channels'] - 1})")
         self.channel = int(channel)
         self.requested_rate_hz = float(sample_rate_hz) if sample_rate_hz else self.info["default_rate_hz"]
         if not (self.requested_rate_hz > 0 and math.isfinite(self.requested_rate_hz)):
-            raise InputError(f"--rate {sample_rate_hz}: must be a positive sample rate")
+            raise InputError(f"{setting('sample_rate_hz')} {sample_rate_hz}: must be a positive sample rate")
         self.latency = latency
         self.blocksize = int(blocksize)
         self.sample_rate_hz = self.requested_rate_hz

@@ -1,4 +1,5 @@
-"""A synthetic oscillator recording with the same interface as the file sources.
+"""A synthetic oscillator recording with the same interface as the file sources
+(:class:`~coilshift.logger.sources.protocol.Source`).
 
 :class:`ToneSource` produces, block by block, what a soundcard would record from a search-coil
 oscillator: a sine or a pulse wave whose frequency follows a script, plus white noise at a chosen
@@ -15,7 +16,7 @@ from typing import Callable, Iterator, Sequence, Union
 
 import numpy as np
 
-from coilshift.logger.sources.recorded import START_FROM_NOW
+from coilshift.logger.sources.protocol import START_FROM_NOW
 
 FreqScript = Union[float, Sequence[tuple[float, float]], Callable[[np.ndarray], np.ndarray]]
 

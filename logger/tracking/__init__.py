@@ -1,3 +1,3 @@
-"""The frequency tracker: pure NumPy/SciPy, no I/O. Settings, coarse search, fine step,
-sub-bin estimators and the IEEE 1057 sine fit. May import only :mod:`coilshift.logger.runfolder`
-(flags, frames) and :mod:`coilshift.logger.errors`."""
+"""The frequency tracker, pure NumPy/SciPy with no I/O: settings, the per-frame stages (coarse, harmonics,
+fine, quality), sub-bin estimators, the IEEE 1057 sine fit, and ``tracker`` streaming frames through them.
+May import only :mod:`coilshift.logger.runfolder` (flags, frames) and :mod:`coilshift.logger.errors`."""

@@ -18,7 +18,8 @@ import numpy as np
 
 from coilshift.logger.runfolder.frames import FrameTable
 from coilshift.logger.runfolder.markers import BASELINE, Marker, markers_to_csv
-from coilshift.logger.runfolder.writer import RunWriter, prepare_run_dir, write_markers_copy
+from coilshift.logger.runfolder.folders import prepare_run_dir
+from coilshift.logger.runfolder.writer import RunWriter, write_markers_copy
 
 FS = 8000
 START = "2026-03-01T12:00:00.000Z"  # small recordings keep the sweep fast; 1 kHz sits well inside 8 kHz Nyquist

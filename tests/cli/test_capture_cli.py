@@ -22,7 +22,7 @@ import numpy as np
 import pytest
 
 from coilshift.logger.runfolder.reader import read_log
-from coilshift.cli import cmd_capture
+from coilshift.cli import cautions
 from coilshift.cli.main import main
 from coilshift.logger.sources.synthetic import ToneSource
 from coilshift.logger.tracking.tracker import TrackerSettings, track_array
@@ -59,7 +59,7 @@ def test_capture_logs_what_the_offline_tracker_finds(tmp_path, config_home, caps
     assert rc == 0, captured.err
     summary = json.loads(captured.out)  # stdout holds exactly one JSON object
     assert summary["status"] == "complete" and summary["ended_by"] == "duration"
-    # the same samples the hidden source generates (see cmd_capture._synthetic_source)
+    # the same samples the hidden source generates (see coilshift.cli.inputs.synthetic_source)
     x = ToneSource([(0.0, 1000.0), (1.0, 1010.0)], 7.0, FS, amplitude=0.5, snr_db=50.0, seed=1).read_all()
     ref = track_array(x[: 2 * FS], FS, TrackerSettings())
     log = read_log(out)
@@ -177,4 +177,4 @@ def test_interrupt_ends_cleanly(tmp_path, sig):
 
 
 def test_state_file_in_the_config_folder(config_home):
-    assert cmd_capture.state_path() == config_home / "coilshift" / "state.json"
+    assert cautions.state_path() == config_home / "coilshift" / "state.json"

@@ -11,7 +11,8 @@ from coilshift.analysis.stability.analyse import analyse_stability
 from coilshift.cli.main import main
 from coilshift.logger.runfolder import flags
 from coilshift.logger.runfolder.frames import FrameTable
-from coilshift.logger.runfolder.writer import RunWriter, prepare_run_dir
+from coilshift.logger.runfolder.folders import prepare_run_dir
+from coilshift.logger.runfolder.writer import RunWriter
 
 
 def _frames(n=3000, tau0=0.02, seed=0):

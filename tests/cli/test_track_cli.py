@@ -26,7 +26,7 @@ def cli(*args, cwd=None):
 
 
 def wav16(path, x, fs=FS):
-    # the WAV reader itself is checked against stdlib-written bytes in tests/logger/test_sources.py
+    # the WAV reader itself is checked against stdlib-written bytes in tests/logger/sources/test_audiofile.py
     sf.write(str(path), np.asarray(x), fs, subtype="PCM_16")
     return path
 

@@ -24,11 +24,12 @@ from hypothesis import strategies as st
 
 from coilshift.analysis.models.coil import analyse_coil, load_coil
 from coilshift.logger.runfolder.reader import read_log
-from coilshift.analysis.stability.analyse import read_temperature_csv
+from coilshift.analysis.stability.tempco import read_temperature_csv
 from coilshift.analysis.models.target import parse_target_spec
 from coilshift.logger.errors import InputError
 from coilshift.logger.runfolder.frames import FrameTable
-from coilshift.logger.runfolder.writer import RunWriter, prepare_run_dir
+from coilshift.logger.runfolder.folders import prepare_run_dir
+from coilshift.logger.runfolder.writer import RunWriter
 from coilshift.sim.script import load_script
 from mutations import mutated
 

@@ -10,8 +10,11 @@ from scipy.signal import lfilter
 
 from coilshift.analysis.stability import allan
 from coilshift.analysis.stability.allan_edf import confidence_interval, edf_greenhall, edf_with_gaps, noise_id_acf
-from coilshift.analysis.stability.analyse import (analyse_stability, fit_drift, noise_at_tau_hz, read_temperature_csv,
-                                          temperature_coefficient, to_uniform)
+from coilshift.analysis.stability.analyse import analyse_stability
+from coilshift.analysis.stability.drift import fit_drift
+from coilshift.analysis.stability.grid import to_uniform
+from coilshift.analysis.stability.noise import noise_at_tau_hz
+from coilshift.analysis.stability.tempco import read_temperature_csv, temperature_coefficient
 from coilshift.logger.errors import InputError
 
 allantools = pytest.importorskip("allantools")

@@ -19,10 +19,11 @@ import soundfile as sf
 
 from coilshift.logger.runfolder.reader import read_log
 from coilshift.logger.runfolder import flags as F
-from coilshift.logger.capture.engine import CaptureEngine, parse_marker_label
+from coilshift.logger.capture.engine import CaptureEngine
+from coilshift.logger.capture.markers import parse_marker_label
 from coilshift.logger.errors import InputError
 from coilshift.logger.runfolder.markers import read_markers
-from coilshift.logger.runfolder.writer import prepare_run_dir
+from coilshift.logger.runfolder.folders import prepare_run_dir
 from coilshift.logger.sources.synthetic import ToneSource
 from coilshift.logger.tracking.tracker import FrameTracker, TrackerSettings
 

@@ -140,7 +140,7 @@ def test_end_of_input_stops_like_quit():
 
 
 def test_marker_label_is_parsed_back_by_the_capture_engine():
-    from coilshift.logger.capture.engine import parse_marker_label
+    from coilshift.logger.capture.markers import parse_marker_label
 
     st = plan_session(["brass key"], [12.5])[1]
     assert parse_marker_label(marker_label(st)) == ("brass key", 12.5)

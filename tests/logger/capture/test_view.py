@@ -8,7 +8,7 @@ import math
 import matplotlib
 import pytest
 
-from coilshift.logger.capture.engine import CaptureSnapshot
+from coilshift.logger.capture.session import CaptureSnapshot
 from coilshift.logger.errors import InputError
 from coilshift.logger.capture.view import (KEY_MARKER, KEY_QUIT, KEY_REZERO, LivePlot, PlainLines, TerminalPanel,
                                         level_meter, panel_lines, status_line)

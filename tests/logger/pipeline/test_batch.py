@@ -20,11 +20,12 @@ import pytest
 from coilshift.logger.runfolder.reader import read_log
 from coilshift.logger.runfolder import flags
 from coilshift.logger.runfolder import writer as runlog
+from coilshift.logger.runfolder.columns import utc_iso
 from coilshift.logger.pipeline.corrections import Corrections
 from coilshift.logger.errors import InputError
 from coilshift.logger.runfolder.markers import Marker
 from coilshift.logger.pipeline.batch import measure_clock, track_source
-from coilshift.logger.sources.recorded import START_FROM_MTIME, open_source
+from coilshift.logger.sources import START_FROM_MTIME, open_source
 from coilshift.logger.sources.synthetic import ToneSource
 from coilshift.logger.tracking.tracker import TrackerSettings
 
@@ -210,7 +211,7 @@ def test_start_time_from_mtime(tmp_path):
     meta = json.loads((tmp_path / "run" / "run.json").read_text())
     assert meta["start_utc_from"] == START_FROM_MTIME
     expected = dt.datetime.fromtimestamp(1_750_000_000 - 2.0, tz=dt.timezone.utc)
-    assert meta["start_utc"] == runlog.utc_iso(expected)
+    assert meta["start_utc"] == utc_iso(expected)
 
 
 def test_progress_reaches_the_end(tmp_path):

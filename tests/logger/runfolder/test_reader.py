@@ -12,7 +12,8 @@ from coilshift.logger.runfolder.reader import read_log
 from coilshift.logger.runfolder import flags
 from coilshift.logger.errors import InputError
 from coilshift.logger.runfolder.frames import FrameTable
-from coilshift.logger.runfolder.writer import RunWriter, prepare_run_dir
+from coilshift.logger.runfolder.folders import prepare_run_dir
+from coilshift.logger.runfolder.writer import RunWriter
 
 START = "2026-03-01T12:00:00.000Z"
 

@@ -24,7 +24,7 @@ from hypothesis.extra.numpy import arrays
 from coilshift.logger.runfolder import flags
 from coilshift.logger.errors import InputError
 from coilshift.logger.runfolder.markers import parse_markers, read_markers
-from coilshift.logger.sources.recorded import open_source
+from coilshift.logger.sources import open_source
 from coilshift.logger.tracking.tracker import TrackerSettings, track_array
 from mutations import mutated
 

@@ -18,7 +18,9 @@ from coilshift.logger.runfolder.reader import read_log
 from coilshift.logger.runfolder import flags
 from coilshift.logger.errors import InputError
 from coilshift.logger.runfolder.frames import FrameTable
-from coilshift.logger.runfolder.writer import LOG_COLUMNS, RunWriter, prepare_run_dir, utc_iso
+from coilshift.logger.runfolder.columns import LOG_COLUMNS, utc_iso
+from coilshift.logger.runfolder.folders import prepare_run_dir
+from coilshift.logger.runfolder.writer import RunWriter
 
 START = "2026-03-01T12:00:00.000Z"
 
@@ -88,7 +90,8 @@ def test_utc_iso_format():
 WRITER_SCRIPT = textwrap.dedent("""
     import sys, time, numpy as np
     from coilshift.logger.runfolder.frames import FrameTable
-    from coilshift.logger.runfolder.writer import RunWriter, prepare_run_dir
+    from coilshift.logger.runfolder.folders import prepare_run_dir
+    from coilshift.logger.runfolder.writer import RunWriter
     run = prepare_run_dir(sys.argv[1])
     w = RunWriter(run, {"start_utc": "2026-03-01T12:00:00.000Z",
                         "baseline": {"freq_hz": 1000.0, "method": "test"}}, fsync_interval_s=0.2)

@@ -23,7 +23,7 @@ import soundfile as sf
 
 from coilshift.logger.runfolder.reader import read_log
 from coilshift.logger.capture.engine import CaptureEngine
-from coilshift.logger.runfolder.writer import prepare_run_dir
+from coilshift.logger.runfolder.folders import prepare_run_dir
 from coilshift.logger.sources.soundcard import SoundcardSource, list_input_devices
 from coilshift.logger.tracking.tracker import FrameTracker, TrackerSettings
 

@@ -1,6 +1,5 @@
 """Frequency tracker: accuracy against the Cramer-Rao bound, fundamental picking, streaming, flags."""
 
-import json
 import math
 
 import numpy as np
@@ -9,7 +8,8 @@ import pytest
 from coilshift.logger.runfolder import flags as fl
 from coilshift.logger.errors import InputError
 from coilshift.logger.tracking.sinefit import fit_sine4_frames
-from coilshift.logger.tracking.tracker import FrameTracker, TrackerSettings, os_cfar_factor, track_array
+from coilshift.logger.tracking.settings import TrackerSettings
+from coilshift.logger.tracking.tracker import FrameTracker, track_array
 
 FS = 48000.0
 
@@ -240,19 +240,6 @@ def test_red_noise_is_no_tone():
     assert np.mean((tab.flags & fl.NO_TONE) == 0) < 0.02
 
 
-def test_os_cfar_factor():
-    # Rohling 1983 [pub]: Pfa = prod_{i<rank} (n - i)/(n - i + T); for rank 1 this is n / (n + T),
-    # so T = n (1/Pfa - 1) [derived]
-    assert os_cfar_factor(24, 1, 0.01) == pytest.approx(24 * 99, rel=1e-9)
-    # Monte Carlo with exponential noise cells (numpy's generator as the independent reference):
-    # 200000 trials give Pfa = 0.01 to +-0.00022 (binomial), so +-0.0012 is over 5 sigma
-    t = os_cfar_factor(24, 12, 0.01)
-    rng = np.random.default_rng(1)
-    cells = np.sort(rng.exponential(size=(200000, 24)), axis=1)[:, 11]
-    cut = rng.exponential(size=200000)
-    assert np.mean(cut > t * cells) == pytest.approx(0.01, abs=0.0012)
-
-
 def test_clipped_tone_flagged_and_still_tracked():
     t = np.arange(int(0.5 * FS)) / FS
     x = np.clip(1.4 * np.sin(2 * np.pi * 1500.2 * t), -1.0, 1.0)
@@ -315,42 +302,6 @@ def test_gap_resets_buffer_and_flags_next_frame():
     # the first frame after the gap starts at the first sample after it
     assert after.t_s[0] == pytest.approx((10000 + (n - 1) / 2) / FS)
     assert len(first) == (10000 - n) // hop + 1
-
-
-# ----------------------------------------------------------------------------- settings
-@pytest.mark.parametrize(
-    "kwargs, words",
-    [
-        (dict(hop_ms=100.0), "hop"),
-        (dict(frame_ms=-1.0), "frame"),
-        (dict(band_hz=(3000.0, 1000.0)), "band"),
-        (dict(clip_level=1.5), "clip_level"),
-    ],
-)
-def test_invalid_settings_raise_input_error(kwargs, words):
-    with pytest.raises(InputError, match=words):
-        TrackerSettings(**kwargs)
-
-
-@pytest.mark.parametrize(
-    "kwargs, words",
-    [
-        (dict(band_hz=(1000.0, 30000.0)), "half the sample rate"),
-        (dict(frame_ms=10.0, hop_ms=5.0, band_hz=(100.0, 2000.0)), "cycles"),
-        (dict(near_hz=25000.0), "near_hz"),
-        (dict(band_hz=(1000.0, 2000.0), near_hz=5000.0), "outside"),
-    ],
-)
-def test_settings_checked_against_sample_rate(kwargs, words):
-    with pytest.raises(InputError, match=words):
-        FrameTracker(FS, TrackerSettings(**kwargs))
-
-
-def test_settings_to_dict_is_json_ready():
-    s = TrackerSettings(band_hz=[900, 1100], near_hz=1000.0, refine=True)
-    d = json.loads(json.dumps(s.to_dict()))
-    assert d["band_hz"] == [900.0, 1100.0] and d["refine"] is True and d["frame_ms"] == 85.0
-    assert TrackerSettings(**{**d, "band_hz": tuple(d["band_hz"])}) == s
 
 
 def test_bad_block_raises_input_error():

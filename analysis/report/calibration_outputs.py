@@ -15,10 +15,11 @@ import math
 import os
 from pathlib import Path
 
-from coilshift.logger.runfolder.atomic import write_text_atomic
+from coilshift.logger.runfolder.atomic import to_jsonable, write_text_atomic
 
 from coilshift.analysis.calibration import classify as _classify
-from coilshift.analysis.calibration.run import CalibrationResult, result_details
+from coilshift.analysis.calibration.run import CalibrationResult
+from coilshift.analysis.calibration.summary import result_details
 from coilshift.analysis.calibration.compare import compare_runs, unique_names
 from coilshift.analysis.calibration.detection import EXTRAPOLATION_LIMIT
 
@@ -207,7 +208,7 @@ def write_outputs(results: list[CalibrationResult], out_dir: str | os.PathLike) 
         folder = out_dir if len(results) == 1 else out_dir / name
         folder.mkdir(parents=True, exist_ok=True)
         files = {"steps.csv": steps_csv(res), "points.csv": points_csv(res),
-                 "result.json": json.dumps(_jsonable(result_details(res)), indent=2) + "\n"}
+                 "result.json": json.dumps(to_jsonable(result_details(res)), indent=2) + "\n"}
         for fname, text in files.items():
             write_text_atomic(folder / fname, text)
             written.append(folder / fname)
@@ -220,15 +221,9 @@ def write_outputs(results: list[CalibrationResult], out_dir: str | os.PathLike) 
     if len(results) > 1:
         compare_png = plots.plot_compare(results, names, out_dir / "compare.png")
         rows = [r.to_dict() for r in compare_runs(results, names)]
-        write_text_atomic(out_dir / "comparison.json", json.dumps(_jsonable({"runs": names, "targets": rows}),
+        write_text_atomic(out_dir / "comparison.json", json.dumps(to_jsonable({"runs": names, "targets": rows}),
                                                                   indent=2) + "\n")
         written += [out_dir / "compare.png", out_dir / "comparison.json"]
     write_text_atomic(out_dir / "report.html", report_html(results, all_images, compare_png))
     written.append(out_dir / "report.html")
     return written
-
-
-def _jsonable(obj):
-    from coilshift.logger.runfolder.atomic import to_jsonable
-
-    return to_jsonable(obj)

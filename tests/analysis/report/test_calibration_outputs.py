@@ -11,8 +11,9 @@ import re
 import pytest
 from synthcal import make_run
 
-from coilshift.analysis.calibration.run import analyse_run, result_summary
-from coilshift.analysis.report.calibration_report import write_outputs
+from coilshift.analysis.calibration.run import analyse_run
+from coilshift.analysis.calibration.summary import result_summary
+from coilshift.analysis.report.calibration_outputs import write_outputs
 from coilshift.logger.errors import InputError
 
 PNG_MAGIC = b"\x89PNG\r\n\x1a\n"  # PNG signature (ISO/IEC 15948, section 5.2)
@@ -108,7 +109,8 @@ def test_run_without_markers_is_refused(tmp_path):
     import numpy as np
 
     from coilshift.logger.runfolder.frames import FrameTable
-    from coilshift.logger.runfolder.writer import RunWriter, prepare_run_dir
+    from coilshift.logger.runfolder.folders import prepare_run_dir
+    from coilshift.logger.runfolder.writer import RunWriter
 
     d = prepare_run_dir(tmp_path / "bare")
     with RunWriter(d, {"start_utc": "2026-12-01T00:00:00.000Z"}) as w:

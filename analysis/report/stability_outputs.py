@@ -1,0 +1,65 @@
+"""Stability outputs: the sigma(tau) and drift plots, the per-tau table (CSV) and the summary (JSON).
+
+``coilshift stability -o`` and the demo write the same four files through
+:func:`write_stability_outputs`, each atomically: a finished file appears whole or not at all.
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+import pandas as pd
+
+from coilshift.logger.runfolder.atomic import write_json_atomic, write_text_atomic
+
+from coilshift.analysis.report.plots_stability import plot_drift, plot_sigma_tau
+from coilshift.analysis.stability.analyse import StabilityResult
+
+SIGMA_TAU_PNG = "sigma_tau.png"
+DRIFT_PNG = "drift.png"
+TABLE_CSV = "stability.csv"
+SUMMARY_JSON = "stability.json"
+
+
+def stability_csv(res: StabilityResult) -> str:
+    """One row per averaging time: deviations with intervals, edf and terms, then the noise type."""
+    cols = {"tau_s": res.tau_s, "m": res.m}
+    for k in ("adev", "oadev", "mdev", "tdev"):
+        unit = "s" if k == "tdev" else "hz"
+        cols[f"{k}_{unit}"] = getattr(res, f"{k}_{unit}")
+        cols[f"{k}_lo_{unit}"] = res.ci_lo[k]
+        cols[f"{k}_hi_{unit}"] = res.ci_hi[k]
+        cols[f"{k}_edf"] = res.edf[k]
+        cols[f"{k}_n_terms"] = res.n_terms[k]
+    for k in ("adev", "oadev", "mdev"):
+        cols[f"{k}_frac"] = res.frac(k)
+    cols["within_frame"] = res.within_frame()
+    cols["noise_alpha"] = res.alpha
+    cols["noise_type"] = res.noise_type
+    cols["noise_method"] = res.noise_method
+    return pd.DataFrame(cols).to_csv(index=False, float_format="%.10g", lineterminator="\n")
+
+
+def write_stability_outputs(result: StabilityResult, out_dir: str | os.PathLike,
+                            summary: dict | None = None) -> list[Path]:
+    """Write ``sigma_tau.png``, ``drift.png``, ``stability.csv`` and ``stability.json`` into ``out_dir``.
+
+    Parameters
+    ----------
+    result : the analysis to write
+    out_dir : an existing folder
+    summary : what ``stability.json`` holds (default ``result.to_dict()``; a caller may add keys
+        such as ``log_interrupted``); NaN and inf are written as null
+
+    Returns
+    -------
+    the paths written, in that order
+    """
+    out = Path(out_dir)
+    paths = [out / SIGMA_TAU_PNG, out / DRIFT_PNG, out / TABLE_CSV, out / SUMMARY_JSON]
+    plot_sigma_tau(result, paths[0])
+    plot_drift(result, paths[1])
+    write_text_atomic(paths[2], stability_csv(result))
+    write_json_atomic(paths[3], result.to_dict() if summary is None else summary)
+    return paths

@@ -1,0 +1,63 @@
+"""The calibration-analysis options (:func:`coilshift.cli.options.add_analysis_options`) turned
+into ``analyse_run`` arguments, and the results printed and written; shared by analyze and
+calibrate."""
+
+from __future__ import annotations
+
+
+def analysis_kwargs(args) -> dict:
+    """Turn the shared analysis options into keyword arguments of ``analyse_run``."""
+    from coilshift.analysis.models.coil import analyse_coil, load_coil
+    from coilshift.logger.errors import InputError
+
+    coil = analyse_coil(load_coil(args.coil)) if args.coil else None
+    models = {}
+    if args.target_model:
+        from coilshift.analysis.models.target import parse_target_spec
+
+        if coil is None:
+            raise InputError("--target-model needs --coil FILE (the prediction depends on the coil)")
+        for name, spec in args.target_model:
+            models[name] = parse_target_spec(spec)
+    if args.bootstrap < 0:
+        raise InputError(f"--bootstrap must be 0 or more, got {args.bootstrap}")
+    return {"settle_s": getattr(args, "analysis_settle_s", None), "threshold_hz": args.threshold_hz, "k": args.noise_factor, "coil": coil,
+            "target_models": models, "polarity": args.polarity, "reference": dict(args.reference_target),
+            "fit_offset": args.fit_offset, "n_boot": args.bootstrap, "seed": args.seed}
+
+
+def report_results(results, args) -> None:
+    """Print the summary (text or JSON) and write the output folder when asked
+    (``args.output``, ``args.force``, ``args.json``)."""
+    import sys
+
+    from coilshift.analysis.calibration.compare import compare_runs, unique_names
+    from coilshift.analysis.calibration.summary import result_summary
+    from coilshift.analysis.report.calibration_outputs import summary_lines, write_outputs
+    from coilshift.cli.common import print_json
+    from coilshift.logger.runfolder.folders import new_output_dir
+
+    out = None
+    if args.output:
+        out = new_output_dir(args.output, args.force)
+        write_outputs(results, out)
+    if args.json:
+        if len(results) == 1:
+            print_json(result_summary(results[0]))
+        else:
+            names = unique_names(results)
+            print_json({"runs": [{"run": n, **result_summary(r)} for n, r in zip(names, results)],
+                        "comparison": [row.to_dict() for row in compare_runs(results, names)]})
+        return
+    for r in results:
+        for line in summary_lines(r):
+            print(line)
+    if len(results) > 1:
+        names = unique_names(results)
+        print("ranges compared (mm):")
+        for row in compare_runs(results, names):
+            cells = ", ".join(f"{n}: " + ("-" if n not in row.range_mm else "undefined" if row.range_mm[n] is None
+                                          else f"{row.range_mm[n]:.1f}") for n in names)
+            print(f"  {row.target}: {cells}")
+    if out is not None:
+        print(f"report: {out / 'report.html'}", file=sys.stderr if args.json else sys.stdout)
