@@ -23,7 +23,8 @@ def analysis_kwargs(args) -> dict:
         raise InputError(f"--bootstrap must be 0 or more, got {args.bootstrap}")
     return {"settle_s": getattr(args, "analysis_settle_s", None), "threshold_hz": args.threshold_hz, "k": args.noise_factor, "coil": coil,
             "target_models": models, "polarity": args.polarity, "reference": dict(args.reference_target),
-            "fit_offset": args.fit_offset, "n_boot": args.bootstrap, "seed": args.seed}
+            "fit_offset": args.fit_offset, "n_boot": args.bootstrap, "seed": args.seed,
+            "placement_mm": args.placement_mm}
 
 
 def report_results(results, args) -> None:
@@ -34,13 +35,17 @@ def report_results(results, args) -> None:
     from coilshift.analysis.calibration.compare import compare_runs, unique_names
     from coilshift.analysis.calibration.summary import result_summary
     from coilshift.analysis.report.calibration_outputs import summary_lines, write_outputs
-    from coilshift.cli.common import print_json
-    from coilshift.logger.runfolder.folders import new_output_dir
+    from pathlib import Path
+
+    from coilshift.cli.common import note_done, print_json
+    from coilshift.logger.runfolder.outputs import building_output_dir
 
     out = None
     if args.output:
-        out = new_output_dir(args.output, args.force)
-        write_outputs(results, out)
+        with building_output_dir(args.output, args.force) as build:  # swapped in whole, or not at all
+            write_outputs(results, build)
+        out = Path(args.output)
+        note_done(f"the outputs were written to {out}")
     if args.json:
         if len(results) == 1:
             print_json(result_summary(results[0]))

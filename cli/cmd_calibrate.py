@@ -6,7 +6,7 @@ import argparse
 import sys
 
 from coilshift.cli.cautions import WIRING_CAUTION
-from coilshift.cli.options import (add_analysis_options, add_force_option, add_json_option, add_live_input_options,
+from coilshift.cli.options import (REPEATS, SECONDS, SETTLE_S, add_analysis_options, add_force_option, add_json_option, add_live_input_options,
                                    add_run_folder_option, add_settle_option, add_synthetic_option, add_target_option,
                                    add_tracking_options)
 
@@ -31,10 +31,10 @@ def register(subparsers) -> None:
     s.add_argument("--distances", required=True, metavar="LIST",
                    help="distances from the coil face, comma-separated, e.g. 10,20,40,80")
     s.add_argument("--unit", choices=("mm", "cm", "in"), default="mm", help="unit of --distances (default mm)")
-    s.add_argument("--dwell", type=float, default=10.0, metavar="S",
+    s.add_argument("--dwell", type=SECONDS, default=10.0, metavar="S",
                    help="seconds recorded per stretch (default 10; the first baseline lasts 2.5 times as long)")
     add_settle_option(s, "seconds waited after each move before recording (default 2)", metavar="S", default=2.0)
-    s.add_argument("--repeats", type=int, default=1, metavar="N", help="run the whole sequence N times (default 1)")
+    s.add_argument("--repeats", type=REPEATS, default=1, metavar="N", help="run the whole sequence N times (default 1)")
     src = add_live_input_options(p, device_help="input device: index or part of its name (see 'coilshift devices')",
                                  channel_help="input channel, from 0 (default 0)")
     add_synthetic_option(src)  # paced test tone, as in capture
@@ -72,12 +72,14 @@ def run(args) -> int:
     from coilshift.logger.errors import InputError
     from coilshift.logger.capture.guide import CalibrationGuide, parse_distances, plan_session
     from coilshift.logger.runfolder.markers import markers_to_csv
-    from coilshift.logger.runfolder.folders import prepare_run_dir
+    from coilshift.logger.runfolder.folders import RunClaim, refuse_existing
     from coilshift.logger.runfolder.writer import write_markers_copy
 
     # every check that can fail does so before the device is opened or a folder created
     check_tracking_options(args)
     distances = parse_distances(args.distances, args.unit)
+    if max(distances) > 1e6:  # beyond a kilometre a distance is a typing error, not a bench
+        raise InputError(f"--distances {args.distances[:40]}: at most 1 km ({1e6:g} mm) from the coil")
     plan = plan_session(args.target, distances, args.repeats, args.dwell)
     if not (math.isfinite(args.settle) and args.settle >= 0):
         raise InputError(f"--settle {args.settle:g}: must be zero or positive seconds")
@@ -85,19 +87,20 @@ def run(args) -> int:
     if args.report_dir and Path(args.report_dir).resolve() == Path(args.out).resolve():
         raise InputError(f"{args.report_dir}: the report folder must differ from the run folder")
     for folder in filter(None, (args.out, args.report_dir)):  # refused now, not after the session
-        p = Path(folder)
-        if p.exists() and (not p.is_dir() or (any(p.iterdir()) and not args.force)):
-            prepare_run_dir(p, False)  # raises the usual one-line refusal and changes nothing
+        refuse_existing(folder, args.force)  # the usual one-line refusal; changes nothing
+    claim = RunClaim(args.out, args.force)
+    claim.hold()  # another command writing the run folder is refused now
     talk = sys.stderr if args.json else sys.stdout
     source = live_source(args, None)
     settings, corr = tracking_from_args(args, source.sample_rate_hz)
     show_caution(sys.stderr)
-    run_dir = prepare_run_dir(args.out, args.force)
+    # the folder (and an old run in it) is touched only once the input is open and tracked
+    run_dir = claim.run_dir
     session = {"targets": list(args.target),
                "distances_mm": distances, "unit": args.unit, "dwell_s": args.dwell, "settle_s": args.settle,
                "repeats": args.repeats}
     engine = CaptureEngine(source, run_dir, settings, corr, baseline_s=min(args.baseline_s, plan[0].dwell_s),
-                           meta={"command": "coilshift " + " ".join(sys.argv[1:]) if sys.argv else "calibrate",
+                           claim=claim, meta={"command": "coilshift " + " ".join(sys.argv[1:]) if sys.argv else "calibrate",
                                  "calibration": session})
     engine.start()
     guide = CalibrationGuide(engine, plan, settle_s=args.settle, ask=_ask_on(talk),

@@ -2,7 +2,8 @@
 
 from __future__ import annotations
 
-from coilshift.cli.options import (add_coil_arguments, add_force_option, add_freq_option, add_json_option,
+from coilshift.cli.options import (CONDUCTIVITY_S_PER_M, DISTANCE_MM, FACTOR, LENGTH_MM, MU_R, SECONDS,
+                                   THRESHOLD_HZ, add_coil_arguments, add_force_option, add_freq_option, add_json_option,
                                    add_out_option, add_target_option, add_threshold_option)
 
 ORDER = 61
@@ -20,21 +21,21 @@ def register(subparsers) -> None:
     add_target_option(t, "target description, e.g. 'steel:diameter_mm=12' or 'sigma=3.5e7,mu_r=1,diameter_mm=20'",
                       metavar="SPEC")
     t.add_argument("--material", metavar="NAME", help="material name (see docs/models.md)")
-    t.add_argument("--conductivity-s-per-m", type=float, metavar="S", help="conductivity, S/m")
-    t.add_argument("--mu-r", type=float, metavar="M", help="relative permeability")
-    t.add_argument("--diameter-mm", type=float, metavar="D", help="sphere diameter")
+    t.add_argument("--conductivity-s-per-m", type=CONDUCTIVITY_S_PER_M, metavar="S", help="conductivity, S/m")
+    t.add_argument("--mu-r", type=MU_R, metavar="M", help="relative permeability")
+    t.add_argument("--diameter-mm", type=LENGTH_MM, metavar="D", help="sphere diameter")
     add_freq_option(p, "operating frequency (default: the coil's LC frequency with --cap-nf)")
-    p.add_argument("--distances-mm", type=float, nargs="+", metavar="Z",
+    p.add_argument("--distances-mm", type=DISTANCE_MM, nargs="+", metavar="Z",
                    help="distances to tabulate (default: 0.2 to 4 coil radii)")
     th = p.add_mutually_exclusive_group()
     add_threshold_option(th, "smallest detectable |shift|, Hz")
-    th.add_argument("--noise-hz", type=float, metavar="S",
+    th.add_argument("--noise-hz", type=THRESHOLD_HZ, metavar="S",
                     help="the oscillator's Allan deviation (Hz) at the reading time: threshold = "
                          "SIGMAS x sqrt(2) x S (a reading minus its baseline)")
     th.add_argument("--noise-log", metavar="RUN",
                     help="take that Allan deviation from a target-free frequency log at --tau-s")
-    p.add_argument("--tau-s", type=float, default=1.0, help="reading (averaging) time for --noise-log (default 1 s)")
-    p.add_argument("--sigmas", type=float, default=3.0, help="threshold multiple of the noise (default 3)")
+    p.add_argument("--tau-s", type=SECONDS, default=1.0, help="reading (averaging) time for --noise-log (default 1 s)")
+    p.add_argument("--sigmas", type=FACTOR, default=3.0, help="threshold multiple of the noise (default 3)")
     add_out_option(p, "write prediction.csv, prediction.json and shift_vs_distance.png to a new folder",
                    metavar="DIR")
     add_force_option(p, "allow --out to be a folder that is not empty")
@@ -167,15 +168,20 @@ def run(args) -> int:
 
 def _write_outputs(args, rep, target, pred, summary) -> list[str]:
     """prediction.csv (the table), prediction.json (the summary) and the plot, in a new folder."""
+    from coilshift.logger.runfolder.outputs import building_output_dir
+
+    with building_output_dir(args.out, args.force) as folder:  # swapped in whole, or not at all
+        return _write_into(folder, rep, target, pred, summary)
+
+
+def _write_into(folder, rep, target, pred, summary) -> list[str]:
     import numpy as np
 
     from coilshift.analysis.report.plots_models import plot_predicted_shift
     from coilshift.analysis.models.target import closed_form_amplitude_hz, predicted_shift_hz
     from coilshift.cli.common import to_jsonable
-    from coilshift.logger.runfolder.folders import new_output_dir
     from coilshift.logger.runfolder.atomic import write_json_atomic, write_text_atomic
 
-    folder = new_output_dir(args.out, args.force)
     rows = ["distance_mm,shift_hz,delta_l_uh,delta_r_ohm,delta_inv_q"]
     for z, s, dl, dr, dq in zip(pred.distance_mm, pred.shift_hz, pred.delta_l_uh, pred.delta_r_ohm,
                                 pred.delta_inv_q):

@@ -7,7 +7,10 @@ Two kinds:
   the axis) and, by reciprocity, the coupling back into the coil carries the same factor again, so
   dL and df/f = -dL/(2L) fall as its square (Wait 1951 for the sphere's dipole moment);
 * physical: the models' :func:`coilshift.analysis.models.target.predicted_shift_hz` for a material, shape
-  and size in front of a designed coil.
+  and size in front of a designed coil (a point-like sphere on the axis of the finite winding);
+  with ``"finite_size": true`` the sphere's finite size is added by the truth model of
+  :mod:`coilshift.sim.fields` (the field's square averaged over the sphere's volume, Biot-Savart
+  off the axis), which the analysis does not share.
 """
 
 from __future__ import annotations
@@ -106,9 +109,12 @@ def _physical(name: str, spec: dict, osc, where: str) -> Response:
         msg = str(exc)
         raise InputError(msg if msg.startswith(w) else f"{w}: {msg}") from None
     freq = float(osc.freq_hz)
+    finite = _finite_size_factor(osc.coil, tspec.diameter_mm) if spec.get("finite_size") else None
 
     def shift(d, report=report, tspec=tspec, freq=freq):
-        return np.asarray(targetmod.predicted_shift_hz(report, tspec, np.asarray(d, float), freq), float)
+        d = np.asarray(d, float)
+        point = np.asarray(targetmod.predicted_shift_hz(report, tspec, d, freq), float)
+        return point if finite is None else point * finite(d)
 
     try:
         probe = shift(np.array([0.0, 100.0]))
@@ -121,11 +127,32 @@ def _physical(name: str, spec: dict, osc, where: str) -> Response:
                                   "inductance_uh": float(report.inductance_uh), "freq_hz": freq})
 
 
+def _finite_size_factor(coil: dict, diameter_mm: float) -> Callable[[np.ndarray], np.ndarray]:
+    """d -> <|h|^2>_sphere(d) / h_z(0, d)^2 from the truth model (sim.fields) for the script's coil."""
+    from coilshift.sim.fields import Target, Winding, mean_field_sq
+
+    w = Winding.from_design_mm(float(coil["turns"]), float(coil["inner_diameter_mm"]), float(coil["length_mm"]),
+                               float(coil.get("depth_mm", 0.0) or 0.0))
+    sphere = Target("sphere", 0.5e-3 * float(diameter_mm))
+
+    def factor(d_mm: np.ndarray) -> np.ndarray:
+        z = np.atleast_1d(np.asarray(d_mm, float)) * 1e-3
+        point = np.array([float(w.field_per_amp(0.0, zi)[1]) ** 2 for zi in z])
+        out = np.asarray(mean_field_sq(w, sphere, z), float) / point
+        return out.reshape(np.shape(d_mm))
+
+    return factor
+
+
 def _target_spec(targetmod, spec: dict, where: str):
-    """The models' TargetSpec from the script's keys: material, diameter_mm, optional sigma and mu_r."""
-    extra = sorted(set(spec) - {"material", "diameter_mm", "sigma", "mu_r"})
+    """The models' TargetSpec from the script's keys: material, diameter_mm, optional sigma and mu_r
+    (``finite_size`` is the simulator's own switch)."""
+    extra = sorted(set(spec) - {"material", "diameter_mm", "sigma", "mu_r", "finite_size"})
     if extra:
-        raise InputError(f"{where}: unknown key '{extra[0]}' (allowed: material, diameter_mm, sigma, mu_r)")
+        raise InputError(f"{where}: unknown key '{extra[0]}' (allowed: material, diameter_mm, sigma, mu_r, "
+                         "finite_size)")
+    if "finite_size" in spec and not isinstance(spec["finite_size"], bool):
+        raise InputError(f"{where}: finite_size must be true or false")
     if not isinstance(spec.get("material"), str):
         raise InputError(f"{where}: material must be a name, e.g. \"aluminium\"")
     parts = [f"{k}={spec[k]}" for k in ("diameter_mm", "sigma", "mu_r") if k in spec]

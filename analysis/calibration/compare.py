@@ -27,13 +27,21 @@ class ComparisonRow:
 
 
 def unique_names(results: list[CalibrationResult]) -> list[str]:
-    """Short run names (folder names), made unique with a numeric suffix where they collide."""
-    seen: dict[str, int] = {}
+    """Short run names (folder names), made unique with a numeric suffix where they collide.
+
+    A suffix never produces a name another run already has: ``a/run``, ``b/run`` and ``c/run-2``
+    are named ``run``, ``run-3`` and ``run-2`` (each run keeps its own outputs and column).
+    """
+    taken = {r.name for r in results}
+    used: set[str] = set()
     out = []
     for r in results:
-        base = r.name
-        seen[base] = seen.get(base, 0) + 1
-        out.append(base if seen[base] == 1 else f"{base}-{seen[base]}")
+        name, k = r.name, 1
+        while name in used or (name != r.name and name in taken):  # taken: another run's own name
+            k += 1
+            name = f"{r.name}-{k}"
+        used.add(name)
+        out.append(name)
     return out
 
 

@@ -1,12 +1,15 @@
 """A calibration run, from its log to curves, ranges and calls: the orchestration layer.
 
 ``analyse_run`` reads a run folder (or a log CSV with a separate markers file), measures every
-target stretch against its bracketing baselines (:mod:`.steps`), combines repeats, fits the
-shift-versus-distance curve of each target (:mod:`.curvefit`), sets the detection threshold
-from the baseline noise at the dwell time (:mod:`.detection`), derives the range with its
-bootstrap interval, calls each target ferrous or non-ferrous (:mod:`.classify`), and, given a
-coil and target models, compares the measured curve with the predicted one. Nothing here
-writes files: :mod:`.summary` turns the result into dictionaries, and
+target stretch against its bracketing baselines (:mod:`.steps`), combines repeats and builds
+their covariance (:mod:`.covariance`), tests whether each target is seen at all
+(:mod:`.significance`), calls it ferrous, non-ferrous or mixed (:mod:`.classify`), fits the
+shift-versus-distance curves of a seen target (:mod:`.curvefit`: the finite-winding law with a
+coil file, else the single-loop law, and a power law), sets the detection threshold from the
+baseline noise at the dwell time with its degrees of freedom (:mod:`.threshold`), reads the
+range from the points with its Monte Carlo interval (:mod:`.detection`, :mod:`.rangemc`), and,
+given a coil and target models, compares the measured curve with the predicted one. Nothing
+here writes files: :mod:`.summary` turns the result into dictionaries, and
 :mod:`coilshift.analysis.report.calibration_outputs` into tables, plots and the HTML report.
 """
 
@@ -24,10 +27,13 @@ from coilshift.logger.runfolder.markers import check_within, read_markers
 from coilshift.logger.runfolder.reader import FrequencyLog, read_log
 
 from coilshift.analysis.calibration import classify as _classify
-from coilshift.analysis.calibration.curvefit import CurveFit, FitError, fit_dipole, fit_power_law
+from coilshift.analysis.calibration.covariance import point_covariance
+from coilshift.analysis.calibration.curvefit import CurveFit, FitError, fit_dipole, fit_power_law, fit_winding
+from coilshift.analysis.calibration.defaults import DEFAULT_PLACEMENT_MM
 from coilshift.analysis.calibration.detection import (DEFAULT_BOOTSTRAP, DEFAULT_K, DEFAULT_SEED, RangeResult,
-                                                      detection_range, noise_at_dwell_hz, numeric_range_mm)
+                                                      detection_range, numeric_range_mm)
 from coilshift.analysis.calibration.steps import DEFAULT_SETTLE_S, MIN_FRAMES, Point, Segment, Step, combine_repeats, compute_steps
+from coilshift.analysis.calibration.threshold import noise_at_dwell
 
 #: baseline noise this many times the typical step error means drift, not noise, sets the
 #: threshold (for white or short-correlated noise the two are about equal)
@@ -74,10 +80,17 @@ class TargetResult:
     power_range_mm: float
     classification: _classify.Classification
     prediction: Prediction | None = None
+    cov: np.ndarray | None = field(default=None, repr=False)
 
     @property
     def cls(self) -> str:
         return self.classification.cls
+
+    @property
+    def seen(self) -> bool:
+        """The family-wise test found a significant shift (else no curve, range or advice)."""
+        sig = self.classification.significance
+        return bool(sig is not None and sig.seen)
 
 
 @dataclass
@@ -102,6 +115,10 @@ class CalibrationResult:
     coil: object | None = None
     radius_mm: float | None = None
     warnings: list[str] = field(default_factory=list)
+    threshold_edf: float = math.inf
+    threshold_edf_noise: str = ""
+    placement_mm: float = DEFAULT_PLACEMENT_MM
+    reference_checks: list = field(default_factory=list)
 
     def target(self, name: str) -> TargetResult | None:
         return next((t for t in self.targets if t.target == name), None)
@@ -141,7 +158,8 @@ def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None 
                 k: float = DEFAULT_K, coil=None, target_models: dict | None = None,
                 polarity: str = "normal", reference: dict[str, str] | None = None,
                 fit_offset: bool = False, n_boot: int = DEFAULT_BOOTSTRAP,
-                seed: int = DEFAULT_SEED, name: str | None = None) -> CalibrationResult:
+                seed: int = DEFAULT_SEED, name: str | None = None,
+                placement_mm: float = DEFAULT_PLACEMENT_MM) -> CalibrationResult:
     """Analyse one calibration run.
 
     Parameters
@@ -153,12 +171,14 @@ def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None 
         else :data:`~coilshift.analysis.calibration.steps.DEFAULT_SETTLE_S`
     threshold_hz : detection threshold; default ``k`` x the baseline Allan deviation at the dwell
     k : threshold factor on the noise
-    coil : a ``CoilReport`` (from ``analyse_coil``); its mean radius fixes R in the fits
-    target_models : target name -> ``TargetSpec`` for predicted curves (needs ``coil``)
+    coil : a ``CoilReport`` (from ``analyse_coil``): the fits use its finite-winding law
+    target_models : target name -> ``TargetSpec`` for predicted curves (needs ``coil``); a
+        model's diameter also enters the winding law's finite-size term
     polarity : ``normal`` (frequency down = ferrous) or ``inverted``
     reference : target name -> declared kind, to check the polarity
     fit_offset : also fit the housing offset d0
-    n_boot, seed : bootstrap replicates and seed for the range interval
+    n_boot, seed : Monte Carlo draws (parametric bootstrap) and seed for the range interval
+    placement_mm : tolerance +-delta of every target placement (mm)
 
     Returns
     -------
@@ -169,6 +189,8 @@ def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None 
     InputError : unreadable log or markers, no markers, no baselines or targets, bad options
     """
     _check_settings(polarity, threshold_hz, k, settle_s)
+    if not (math.isfinite(placement_mm) and placement_mm >= 0):
+        raise InputError(f"{setting('placement_mm')}: must be zero or a positive number of mm, got {placement_mm}")
     target_models = dict(target_models or {})
     reference = dict(reference or {})
     _check_references(reference, target_models, coil)
@@ -192,14 +214,18 @@ def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None 
     by_target: dict[str, list[Point]] = {}
     for p in points:
         by_target.setdefault(p.target, []).append(p)
-    targets = [_analyse_target(tname, pts, noise.threshold_hz, radius=radius, fit_offset=fit_offset,
-                               n_boot=n_boot, seed=seed, polarity=polarity, coil=coil,
-                               spec=target_models.get(tname), baseline_hz=baseline_hz)
-               for tname, pts in by_target.items()]
+    opts = _TargetOptions(noise.threshold_hz, noise.edf, placement_mm, fit_offset, n_boot, seed, polarity, coil,
+                          baseline_hz)
+    targets = [_analyse_target(tname, pts, opts, target_models.get(tname)) for tname, pts in by_target.items()]
     warnings += _call_warnings(targets, by_target, target_models, reference, polarity)
+    if any(t.range.dominant == "threshold" for t in targets):
+        warnings.append(f"the threshold's noise estimate ({noise.edf:.3g} degrees of freedom) dominates the range "
+                        "interval(s): a known threshold (--threshold-hz) or a longer first "
+                        "target-free stretch (10-20 dwells) narrows them")
+    checks = _classify.reference_checks({t.target: t.classification for t in targets}, reference)
     return CalibrationResult(src, name or Path(src).name or src, log, steps, bases, targets, baseline_hz, dwell_s,
                              noise.noise_hz, noise.noise_tau_s, noise.threshold_hz, noise.source, k, settle_s,
-                             polarity, coil, radius, warnings)
+                             polarity, coil, radius, warnings, noise.edf, noise.edf_noise, placement_mm, checks)
 
 
 def _check_settings(polarity: str, threshold_hz: float | None, k: float, settle_s: float | None) -> None:
@@ -268,17 +294,22 @@ class _Threshold:
     threshold_hz: float
     source: str
     warnings: list[str]
+    edf: float = math.inf  # degrees of freedom of the noise behind the threshold (inf: given)
+    edf_noise: str = ""
 
 
 def _noise_and_threshold(log: FrequencyLog, bases: list[Segment], usable: np.ndarray, steps: list[Step],
                          dwell_s: float, threshold_hz: float | None, k: float) -> _Threshold:
-    """Noise of the baselines at the dwell (:func:`.detection.noise_at_dwell_hz`); threshold k x noise."""
+    """Noise of the baselines at the dwell (:func:`.threshold.noise_at_dwell`); threshold k x noise."""
     warnings: list[str] = []
-    noise_hz, noise_tau = noise_at_dwell_hz(log.t_s, _baseline_only(log, bases, usable), dwell_s)
+    est = noise_at_dwell(log.t_s, _baseline_only(log, bases, usable), dwell_s)
+    noise_hz, noise_tau = est.noise_hz, est.tau_s
+    edf = math.inf
     if threshold_hz is not None:
         thr, thr_src = float(threshold_hz), "given"
     elif math.isfinite(noise_hz):
         thr, thr_src = k * noise_hz, f"{k:g} x noise"
+        edf = est.edf if math.isfinite(est.edf) else 1.0
         if noise_tau < dwell_s:
             warnings.append(f"baselines too short for the noise at the {dwell_s:g} s dwell; used the noise "
                             f"at {noise_tau:g} s (higher, so the threshold errs high). Record a first "
@@ -292,30 +323,66 @@ def _noise_and_threshold(log: FrequencyLog, bases: list[Segment], usable: np.nda
                         f"typical step error ({typical_err:.3g} Hz): drift or slow wander dominates it"
                         + (" and sets the threshold; let the oscillator warm up, shorten the dwell, or give "
                            "--threshold-hz" if thr_src != "given" else ""))
-    return _Threshold(noise_hz, noise_tau, thr, thr_src, warnings)
+    return _Threshold(noise_hz, noise_tau, thr, thr_src, warnings, edf, est.edf_noise if thr_src != "given" else "")
 
 
-def _analyse_target(tname: str, pts: list[Point], thr: float, *, radius: float | None, fit_offset: bool,
-                    n_boot: int, seed: int, polarity: str, coil, spec, baseline_hz: float) -> TargetResult:
-    """One target: dipole and power-law fits, range with its interval, the call, the prediction."""
-    d = [p.distance_mm for p in pts]
-    y = [p.shift_hz for p in pts]
-    e = [p.stderr_hz for p in pts]
-    fit = power = None
-    reason = ""
+@dataclass(frozen=True)
+class _TargetOptions:
+    """The run-wide settings every target is analysed with."""
+
+    threshold_hz: float
+    threshold_edf: float
+    placement_mm: float
+    fit_offset: bool
+    n_draws: int
+    seed: int
+    polarity: str
+    coil: object
+    baseline_hz: float
+
+
+def _fits(d, y, e, cov, o: _TargetOptions, spec) -> tuple[CurveFit | None, str, CurveFit | None]:
+    """The main fit (finite-winding law with a coil, else single loop) and the power law."""
+    fit, reason, power = None, "", None
     try:
-        fit = fit_dipole(d, y, e, radius_mm=radius, fit_offset=fit_offset)
+        if o.coil is not None:
+            from coilshift.analysis.models.windinglaw import winding_shape
+
+            diam = float(spec.diameter_mm) if spec is not None else 0.0
+            coil = o.coil
+            fit = fit_winding(d, y, e, lambda dd: winding_shape(coil, dd, diam), fit_offset=o.fit_offset,
+                              cov=cov, placement_mm=o.placement_mm,
+                              shape_from="coil file" + (f", {diam:g} mm sphere" if diam > 0 else ""))
+        else:
+            fit = fit_dipole(d, y, e, fit_offset=o.fit_offset, cov=cov, placement_mm=o.placement_mm)
     except FitError as exc:
         reason = f"no curve: {exc}"
     try:
-        power = fit_power_law(d, y, e)
+        power = fit_power_law(d, y, e, cov=cov, placement_mm=o.placement_mm)
     except FitError:
         power = None
-    rng_res = detection_range(fit, thr, n_boot=n_boot, seed=seed, fit_reason=reason)
-    p_range = numeric_range_mm(power, thr) if power is not None else math.nan
-    call = _classify.classify_points(tname, pts, thr, polarity)
-    pred = _prediction(coil, spec, baseline_hz, pts) if spec is not None else None
-    return TargetResult(tname, pts, fit, reason, power, rng_res, p_range, call, pred)
+    return fit, reason, power
+
+
+def _analyse_target(tname: str, pts: list[Point], o: _TargetOptions, spec) -> TargetResult:
+    """One target: the call, and for a seen target the fits and the range with its interval."""
+    d = [p.distance_mm for p in pts]
+    y = [p.shift_hz for p in pts]
+    e = [p.stderr_hz for p in pts]
+    cov = point_covariance(pts)
+    call = _classify.classify_points(tname, pts, o.polarity)
+    seen = call.significance is not None and call.significance.seen
+    fit = power = None
+    reason = "not detected: no significant shift, so no curve"
+    if seen:
+        fit, reason, power = _fits(d, y, e, cov, o, spec)
+    sign = -1.0 if (call.z < 0 if math.isfinite(call.z) else sum(y) < 0) else 1.0
+    rng_res = detection_range(d, y, cov, o.threshold_hz, seen=seen, sign=sign, threshold_edf=o.threshold_edf,
+                              placement_mm=o.placement_mm, fit=fit, power=power, n_draws=o.n_draws, seed=o.seed,
+                              fit_reason=reason)
+    p_range = numeric_range_mm(power, o.threshold_hz) if power is not None and power.accepted else math.nan
+    pred = _prediction(o.coil, spec, o.baseline_hz, pts) if spec is not None else None
+    return TargetResult(tname, pts, fit, reason, power, rng_res, p_range, call, pred, cov)
 
 
 def _call_warnings(targets: list[TargetResult], by_target: dict, target_models: dict, reference: dict,
@@ -325,6 +392,6 @@ def _call_warnings(targets: list[TargetResult], by_target: dict, target_models: 
                 if tname not in by_target]
     classes = {t.target: t.classification for t in targets}
     warnings += _classify.check_reference(classes, reference, polarity)
-    if any(t.classification.n_significant and t.cls == _classify.INDETERMINATE for t in targets):
+    if any(t.cls == _classify.MIXED for t in targets):
         warnings.append(_classify.MIXED_STEEL_CAUTION)
     return warnings

@@ -19,7 +19,7 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import stats
+from scipy import special
 
 from coilshift.logger.errors import InputError
 from coilshift.logger.runfolder.markers import Marker
@@ -112,12 +112,12 @@ def correlated_mean(x: np.ndarray) -> CorrelatedMean:
         var_mean *= 2.0
         converged = False
     nu = max(n / (2.0 * tau) - 1.0, 1.0)
-    widen = stats.t.ppf(_Q68, nu) / stats.norm.ppf(_Q68)
+    widen = special.stdtrit(nu, _Q68) / special.ndtri(_Q68)
     return CorrelatedMean(float(x.mean()), float(math.sqrt(var_mean) * widen), n, float(tau),
                           float(n / tau), converged)
 
 
-_Q68 = stats.norm.cdf(1.0)  # one-sided quantile of +-1 sigma
+_Q68 = float(special.ndtr(1.0))  # one-sided quantile of +-1 sigma
 _LINE_LOSS = 6.0  # variance lost to the fitted line, in units of tau_int/n (see correlated_mean)
 
 
@@ -151,6 +151,10 @@ class Step:
     bracketed : True when a baseline exists on both sides (drift removed to first order)
     unbracketed_shift_hz : target mean minus the run's first baseline (for comparison only)
     note : why a step is weak (one-sided baseline, no convergence), '' when clean
+    target_stderr_hz : standard error of the target stretch's own mean
+    baseline_terms : ``(index, weight, stderr_hz)`` of each baseline in the interpolation
+        (index into the sorted baseline list of :func:`compute_steps`): the shift is the target
+        mean minus ``sum weight x baseline mean``, so steps that share a baseline are correlated
     """
 
     target: str
@@ -164,6 +168,8 @@ class Step:
     bracketed: bool
     unbracketed_shift_hz: float
     note: str = ""
+    target_stderr_hz: float = math.nan
+    baseline_terms: tuple = ()
 
 
 @dataclass(frozen=True)
@@ -244,6 +250,7 @@ def compute_steps(t_s: np.ndarray, freq_hz: np.ndarray, markers: list[Marker],
     if not targets:
         raise InputError(f"{source}: no target stretch has {MIN_FRAMES} usable frames after settling")
     first = bases[0]
+    index = {id(b): i for i, b in enumerate(bases)}
     steps = []
     for seg in sorted(targets, key=lambda s: s.t_mid_s):
         before = [b for b in bases if b.marker.end_s <= seg.marker.start_s + 1e-9]
@@ -252,19 +259,21 @@ def compute_steps(t_s: np.ndarray, freq_hz: np.ndarray, markers: list[Marker],
         if before and after:
             b0, b1 = before[-1], after[0]
             w1 = (seg.t_mid_s - b0.t_mid_s) / (b1.t_mid_s - b0.t_mid_s)
-            base = (1 - w1) * b0.stat.mean + w1 * b1.stat.mean
-            var_b = ((1 - w1) * b0.stat.stderr) ** 2 + (w1 * b1.stat.stderr) ** 2
+            terms = ((index[id(b0)], 1 - w1, b0.stat.stderr), (index[id(b1)], w1, b1.stat.stderr))
             bracketed = True
             notes += [f"baseline {_note(b)}" for b in (b0, b1) if _note(b)]
         else:
             b = before[-1] if before else after[0]
-            base, var_b, bracketed = b.stat.mean, b.stat.stderr ** 2, False
+            terms, bracketed = ((index[id(b)], 1.0, b.stat.stderr),), False
             notes.append("baseline on one side only: drift not removed")
+        base = sum(w * bases[i].stat.mean for i, w, _ in terms)
+        var_b = sum((w * e) ** 2 for _, w, e in terms)
         shift = seg.stat.mean - base
         err = math.sqrt(seg.stat.stderr ** 2 + var_b)
         steps.append(Step(seg.marker.target, seg.marker.distance_mm, seg.used_start_s, seg.used_end_s,
                           float(shift), float(err), seg.stat.n, float(base), bracketed,
-                          float(seg.stat.mean - first.stat.mean), "; ".join(notes)))
+                          float(seg.stat.mean - first.stat.mean), "; ".join(notes),
+                          float(seg.stat.stderr), tuple((int(i), float(w), float(e)) for i, w, e in terms)))
     return steps, bases
 
 
@@ -301,7 +310,7 @@ def combine_repeats(steps: list[Step]) -> list[Point]:
         err = float(1.0 / math.sqrt(np.sum(w)))
         chi2 = float(np.sum(w * (x - mean) ** 2))
         dof = len(group) - 1
-        consistent = bool(stats.chi2.sf(chi2, dof) >= REPEAT_TEST_P)
+        consistent = bool(special.chdtrc(dof, chi2) >= REPEAT_TEST_P)
         if not consistent:
             err *= math.sqrt(chi2 / dof)
         out.append(Point(target, dist, mean, err, n, len(group), chi2, consistent, tuple(group)))

@@ -205,19 +205,21 @@ def coil_axial_field_per_amp(coil, distance_mm):
     the axis (finite-solenoid sheet: n/2 [z2/sqrt(a^2+z2^2) - z1/sqrt(a^2+z1^2)]) and by 16-point
     Gauss-Legendre over the depth. For a single loop this is N a^2 / (2 (a^2 + z^2)^{3/2}).
     """
-    rep = as_report(coil)
-    z = np.asarray(distance_mm, float) * 1e-3
-    r0, r1, length = _winding_bounds(rep)
-    n = float(rep.design.turns)
-    z1 = z[..., None]
+    radii, weights, length, n = winding_nodes(coil)
+    z1 = np.asarray(distance_mm, float)[..., None] * 1e-3
     z2 = z1 + length
-    if r1 > r0:
-        radii = 0.5 * (r1 - r0) * _GL_X + 0.5 * (r1 + r0)
-        weights = 0.5 * _GL_W
-    else:
-        radii, weights = np.array([r0]), np.array([1.0])
     sheet = z2 / np.sqrt(radii ** 2 + z2 ** 2) - z1 / np.sqrt(radii ** 2 + z1 ** 2)
     return (n / (2.0 * length)) * np.sum(sheet * weights, axis=-1)
+
+
+def winding_nodes(coil) -> tuple[np.ndarray, np.ndarray, float, float]:
+    """(radii m, weights, length m, turns): the 16-point Gauss-Legendre rule over the winding's
+    depth (one node for a single layer) that the axial field and its slope integrate with."""
+    rep = as_report(coil)
+    r0, r1, length = _winding_bounds(rep)
+    if r1 > r0:
+        return 0.5 * (r1 - r0) * _GL_X + 0.5 * (r1 + r0), 0.5 * _GL_W, length, float(rep.design.turns)
+    return np.array([r0]), np.array([1.0]), length, float(rep.design.turns)
 
 
 @dataclass

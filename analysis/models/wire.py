@@ -45,11 +45,12 @@ def parse_awg(value) -> int:
     text = str(value).strip().upper().removesuffix("AWG").strip()
     if text in _AWG_WORDS:
         return _AWG_WORDS[text]
-    try:
-        n = float(text)
-    except ValueError:
-        raise InputError(f"AWG {value!r}: not a wire gauge (use e.g. 26, 0, 00, 4/0)") from None
-    if n != int(n) or not -3 <= n <= 56:
+    numeric = isinstance(value, (int, float)) and not isinstance(value, bool)
+    # a gauge is written 0..56 (or 00, 000, 0000): "00000", "1e1" or "nan" name no wire
+    if not (numeric or (text.lstrip("-").isdigit() and len(text.lstrip("-")) <= 2)):
+        raise InputError(f"AWG {value!r}: not a wire gauge (use e.g. 26, 0, 00, 4/0)")
+    n = float(value) if numeric else float(text)
+    if not math.isfinite(n) or n != int(n) or not -3 <= n <= 56:
         raise InputError(f"AWG {value!r}: gauge must be a whole number from 0000 (-3) to 56")
     return int(n)
 

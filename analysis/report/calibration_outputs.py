@@ -21,7 +21,11 @@ from coilshift.analysis.calibration import classify as _classify
 from coilshift.analysis.calibration.run import CalibrationResult
 from coilshift.analysis.calibration.summary import result_details
 from coilshift.analysis.calibration.compare import compare_runs, unique_names
+from coilshift.analysis.calibration.curvefit import FIT_ACCEPT_P
 from coilshift.analysis.calibration.detection import EXTRAPOLATION_LIMIT
+from coilshift.analysis.calibration.significance import FAMILY_ALPHA
+from coilshift.analysis.report.calibration_text import (fit_text, prediction_text, range_text, threshold_text,
+                                                        uncertainty_rows)
 
 STEP_COLUMNS = ("target", "distance_mm", "shift_hz", "stderr_hz", "n", "start_s", "end_s", "baseline_hz",
                 "bracketed", "unbracketed_shift_hz", "note")
@@ -63,14 +67,8 @@ def points_csv(res: CalibrationResult) -> str:
     return buf.getvalue()
 
 
-def _range_text(t) -> str:
-    r = t.range
-    if r.range_mm is None:
-        extra = f" (curve reaches it at {r.extrapolated_mm:.0f} mm)" if math.isfinite(r.extrapolated_mm) \
-            and r.extrapolated_mm > 0 else ""
-        return f"undefined: {r.reason}{extra}"
-    ci = f" (95 % interval {r.ci_mm[0]:.1f}-{r.ci_mm[1]:.1f} mm)" if r.ci_mm else ""
-    return f"{r.range_mm:.1f} mm{ci}"
+def _call_text(t) -> str:
+    return f"{t.cls} - {t.classification.reason}"
 
 
 def summary_lines(res: CalibrationResult) -> list[str]:
@@ -78,20 +76,23 @@ def summary_lines(res: CalibrationResult) -> list[str]:
     lines = [f"run {res.source}: {len(res.steps)} target stretch(es), dwell {res.dwell_s:.3g} s, "
              f"baseline {res.baseline_hz:.4f} Hz",
              f"noise {_f(res.noise_hz, '{:.4g}') or 'unknown'} Hz at {_f(res.noise_tau_s, '{:.3g}') or '-'} s; "
-             f"threshold {_f(res.threshold_hz, '{:.4g}') or 'none'} Hz ({res.threshold_source}); "
-             f"polarity {res.polarity}"]
+             f"{threshold_text(res)}; placement tolerance +-{res.placement_mm:g} mm; polarity {res.polarity}"]
     for t in res.targets:
-        lines.append(f"  {t.target}: {t.cls} - {t.classification.reason}")
+        lines.append(f"  {t.target}: {_call_text(t)}")
         for p in t.points:
             lines.append(f"    {p.distance_mm:8g} mm  {p.shift_hz:+12.5f} Hz  +- {p.stderr_hz:.5f}  (n={p.n})")
-        if t.fit is not None:
-            pr, er = t.fit.params, t.fit.errors
-            lines.append(f"    dipole fit: A = {pr['a_hz']:+.4g} +- {er['a_hz']:.2g} Hz, R = {pr['radius_mm']:.4g}"
-                         f" +- {er['radius_mm']:.2g} mm, chi2/dof = {_f(t.fit.chi2_red, '{:.2f}') or '-'}")
-        lines.append(f"    range: {_range_text(t)}")
+        if t.seen:
+            for f in (t.fit, t.power_fit):
+                if f is not None:
+                    lines.append(f"    {fit_text(f)}")
+            if t.fit is None and t.fit_reason:
+                lines.append(f"    {t.fit_reason}")
+        lines.append(f"    range: {range_text(t)}")
         if t.prediction is not None:
-            lines.append(f"    measured/predicted ({t.prediction.spec.name}): {t.prediction.scale:.3g}"
-                         f" +- {t.prediction.scale_err:.2g}")
+            lines.append(f"    measured/predicted ({t.prediction.spec.name}): {prediction_text(t.prediction)}")
+    for c in res.reference_checks:
+        lines.append(f"  polarity check: reference {c.target} declared {c.declared}, reads "
+                     f"{c.called or 'absent'}: " + {True: "agrees", False: "DISAGREES", None: "not checked"}[c.agrees])
     for wmsg in res.warnings:
         lines.append(f"  warning: {wmsg}")
     return lines
@@ -108,27 +109,36 @@ def _table(header, rows) -> str:
     return f"<table><thead><tr>{th}</tr></thead><tbody>{body}</tbody></table>"
 
 
+def _target_rows(res: CalibrationResult) -> list[list[str]]:
+    rows = []
+    for t in res.targets:
+        fit = fit_text(t.fit, "±") if t.fit is not None and t.seen else ("-" if t.seen else "none (not detected)")
+        power = fit_text(t.power_fit, "±") if t.power_fit is not None and t.seen else "-"
+        pred = prediction_text(t.prediction, "±") if t.prediction is not None else "-"
+        rows.append([t.target, t.cls, t.classification.reason, range_text(t), fit, power, pred])
+    return rows
+
+
 def _run_section(res: CalibrationResult, images: dict[str, bytes]) -> str:
     parts = [f"<h2>Run {html.escape(res.name)}</h2>",
              f"<p>Source <code>{html.escape(res.source)}</code>; baseline {res.baseline_hz:.4f} Hz; dwell "
              f"{res.dwell_s:.3g} s (settling {res.settle_s:g} s removed at each end of every stretch); "
              f"noise (overlapping Allan deviation of the baselines) {_f(res.noise_hz, '{:.4g}') or 'unknown'} Hz "
-             f"at {_f(res.noise_tau_s, '{:.3g}') or '-'} s; detection threshold "
-             f"{_f(res.threshold_hz, '{:.4g}') or 'none'} Hz ({html.escape(res.threshold_source)}); polarity "
-             f"{res.polarity}.</p>"]
-    rows = []
-    for t in res.targets:
-        fit = "-"
-        if t.fit is not None:
-            pr, er = t.fit.params, t.fit.errors
-            fit = (f"A={pr['a_hz']:+.4g}±{er['a_hz']:.2g} Hz, R={pr['radius_mm']:.4g}±{er['radius_mm']:.2g} mm"
-                   + (f", d0={pr['offset_mm']:.3g} mm" if "offset_mm" in t.fit.free else "")
-                   + f", χ²/dof={_f(t.fit.chi2_red, '{:.2f}') or '-'}")
-        power = f"p={t.power_fit.params['p']:.2f}±{t.power_fit.errors['p']:.2f}" if t.power_fit else "-"
-        pred = (f"{t.prediction.scale:.3g}±{t.prediction.scale_err:.2g}" if t.prediction is not None else "-")
-        rows.append([t.target, t.cls, t.classification.reason, _range_text(t), fit, power, pred])
-    parts.append(_table(["target", "call", "why", "detection range", "dipole fit", "power law",
-                         "measured/predicted"], rows))
+             f"at {_f(res.noise_tau_s, '{:.3g}') or '-'} s; {html.escape(threshold_text(res))}; placement "
+             f"tolerance ±{res.placement_mm:g} mm; polarity {res.polarity}.</p>"]
+    parts.append(_table(["target", "call", "evidence", "detection range", "curve fit", "power law",
+                         "measured/predicted"], _target_rows(res)))
+    unc = [[t.target] + row for t in res.targets for row in uncertainty_rows(t)]
+    if unc:
+        parts.append("<h3>Range uncertainty by source</h3><p>The 95 % interval with only that source on; "
+                     "the share is of the summed squared widths.</p>")
+        parts.append(_table(["target", "source", "interval alone", "width", "share"], unc))
+    if res.reference_checks:
+        verdict = {True: "agrees", False: "DISAGREES: check the polarity", None: "no clear call: not checked"}
+        parts.append("<h3>Polarity check (reference targets)</h3>")
+        parts.append(_table(["reference target", "declared", "reads", "verdict"],
+                            [[c.target, c.declared, c.called or "not in the run", verdict[c.agrees]]
+                             for c in res.reference_checks]))
     prow = [[p.target, f"{p.distance_mm:g}", f"{p.shift_hz:+.5f}", f"{p.stderr_hz:.5f}", p.n, p.repeats,
              "yes" if p.consistent else "NO"] for t in res.targets for p in t.points]
     parts.append("<h3>Calibration points</h3>")
@@ -157,10 +167,17 @@ def report_html(results: list[CalibrationResult], images: list[dict[str, bytes]]
              "<title>coilshift calibration report</title>", f"<style>{_STYLE}</style></head><body>",
              "<h1>Calibration report</h1>",
              "<p>Shift = target-stretch mean minus the baseline interpolated in time between the target-free "
-             "stretches before and after it. Errors allow for correlated frame noise. Curve: "
-             "shift(d) = A (R²/(R²+d²))³ (on-axis dipole, falls as d⁻⁶); range = largest distance where the "
-             f"fitted |shift| reaches the threshold (not reported beyond {EXTRAPOLATION_LIMIT:g}× the farthest "
-             "calibration distance).</p>",
+             "stretches before and after it. Errors allow for correlated frame noise; neighbouring steps share "
+             f"baselines and are fitted with their covariance. A target is <i>seen</i> when a Sidak family-wise "
+             f"test at {100 * FAMILY_ALPHA:g} % over its points finds a significant shift; otherwise it gets no "
+             "curve and no range. Curves: the finite-winding law A·(h(d+d0)/h(0))² with a coil file, else the "
+             "single-loop law A·(R²/(R²+(d+d0)²))³ (falls as d⁻⁶), and a power law; a fit whose χ² test gives "
+             f"p &lt; {FIT_ACCEPT_P:g} is rejected (not drawn, not used to extrapolate). Range = where the "
+             "target's |shift| falls to the threshold, interpolated between the two calibration points that "
+             "bracket it (<i>measured</i>), or carried on past the farthest point with an accepted fit's shape "
+             f"(<i>extrapolated</i>, at most {EXTRAPOLATION_LIMIT:g}× the farthest distance). The 95 % interval is "
+             "a Monte Carlo propagation of the point errors, the placement tolerance, the threshold's noise "
+             "estimate and the interpolation model.</p>",
              "<div class='caution'><b>Cautions</b><ul>"
              + "".join(f"<li>{html.escape(c)}</li>" for c in (_classify.POLARITY_CAUTION,
                                                              _classify.MIXED_STEEL_CAUTION,

@@ -14,7 +14,9 @@ import os
 import numpy as np
 from matplotlib.ticker import FuncFormatter
 
+from coilshift.analysis.calibration.classify import format_p
 from coilshift.analysis.calibration.run import CalibrationResult, TargetResult
+from coilshift.analysis.report.calibration_text import MODEL_NAMES
 from coilshift.analysis.report.figures import COLORS, save_png, subplots
 
 #: at most this many points of a long log are drawn (min/max per bucket keeps the envelope)
@@ -56,21 +58,28 @@ def _draw_target(ax, t: TargetResult, color: str, d_grid: np.ndarray, label_pref
         if sel.any():
             ax.errorbar(d[sel], mag[sel], yerr=[lo_err[sel], np.nan_to_num(e[sel])], fmt=marker, ms=7,
                         mfc=fill, mec=color, ecolor=color, capsize=3, lw=1, ls="none")
-    # a curve through points that are all noise says nothing: draw the points only
-    seen = t.classification.n_significant > 0
+    # a curve through points that are all noise says nothing, and a rejected fit does not describe
+    # the points: draw the points only, and say why in the legend
+    seen = t.seen
     r = t.range
     has_range = r.range_mm is not None and math.isfinite(threshold_hz)
-    if t.fit is not None and seen:
-        p = t.fit.params
+    reach = f"; range {r.range_mm:.0f} mm ({r.basis})" if has_range else ""
+    if not seen:
+        ax.plot([], [], "v", color=color, label=f"{name} (not detected: no curve)")
+    elif t.fit is None:
+        ax.plot([], [], "v", color=color, label=f"{name} (no fit){reach}")
+    elif t.fit.accepted:
+        law = MODEL_NAMES.get(t.fit.model, t.fit.model)
         # the range goes in the legend, not beside its marker, where close ranges would overlap
-        reach = f"; range {r.range_mm:.0f} mm" if has_range else ""
         ax.plot(d_grid, np.abs(t.fit.predict(d_grid)), "-", color=color, lw=1.6,
-                label=f"{name}: dipole fit A={p['a_hz']:+.3g} Hz, R={p['radius_mm']:.3g} mm{reach}")
+                label=f"{name}: {law}, chi2/dof {t.fit.chi2_red:.2g}{reach}")
     else:
-        ax.plot([], [], "v", color=color, label=f"{name} ({'no fit' if t.fit is None else 'no significant shift'})")
-    if t.power_fit is not None and seen and show_power:
+        ax.plot([], [], "-", color=color, alpha=0.3,
+                label=f"{name}: {MODEL_NAMES.get(t.fit.model, t.fit.model)} fit REJECTED "
+                      f"(chi2/dof {t.fit.chi2_red:.3g}, {format_p(t.fit.p_value)}): not drawn{reach}")
+    if t.power_fit is not None and seen and show_power and t.power_fit.accepted:
         ax.plot(d_grid, np.abs(t.power_fit.predict(d_grid)), "--", color=color, lw=0.9, alpha=0.7,
-                label=f"{name}: power law p={t.power_fit.params['p']:.2f}")
+                label=f"{name}: power law, exponent {t.power_fit.params['p']:.2f}")
     if t.prediction is not None and coil is not None:
         pred = np.abs(t.prediction.curve(coil, d_grid))
         ax.plot(d_grid, pred, ":", color=color, lw=1.6, label=f"{name}: predicted ({t.prediction.spec.name})")
@@ -85,7 +94,7 @@ def _draw_target(ax, t: TargetResult, color: str, d_grid: np.ndarray, label_pref
 def _sign_legend(ax) -> None:
     ax.plot([], [], "v", color="grey", label="frequency falls (filled)")
     ax.plot([], [], "^", mfc="white", mec="grey", color="grey", label="frequency rises (open)")
-    ax.plot([], [], "D", color="grey", mec="black", label="detection range (95 % interval)")
+    ax.plot([], [], "D", color="grey", mec="black", label="detection range (95 % interval; measured or extrapolated)")
 
 
 def plot_curves(res: CalibrationResult, path: str | os.PathLike | None = None) -> bytes:
@@ -167,15 +176,17 @@ def plot_timeseries(res: CalibrationResult, path: str | os.PathLike | None = Non
 
 
 def plot_residuals(res: CalibrationResult, path: str | os.PathLike | None = None) -> bytes:
-    """Normalised residuals (measured - fit)/stderr of the dipole fits against distance."""
+    """Normalised residuals (measured - fit)/effective error of the curve fits against distance."""
     fig, ax = subplots(figsize=(9, 4.5))
     any_fit = False
     for i, t in enumerate(res.targets):
         if t.fit is None:
             continue
         any_fit = True
+        verdict = "accepted" if t.fit.accepted else "REJECTED"
         ax.plot(t.fit.distance_mm, t.fit.normalized_residuals, "o-", color=_color(i), ms=6, lw=0.8,
-                label=f"{t.target}: chi2/dof = {t.fit.chi2_red:.2f} ({t.fit.dof} dof)")
+                label=f"{t.target}: {MODEL_NAMES.get(t.fit.model, t.fit.model)}, chi2/dof = {t.fit.chi2_red:.3g} "
+                      f"({t.fit.dof} dof, {format_p(t.fit.p_value)}): {verdict}")
     for level, ls in ((1, ":"), (3, "--")):
         ax.axhline(level, color="grey", ls=ls, lw=0.8)
         ax.axhline(-level, color="grey", ls=ls, lw=0.8)
@@ -183,8 +194,8 @@ def plot_residuals(res: CalibrationResult, path: str | os.PathLike | None = None
     ax.set_xscale("log")
     _plain_mm_ticks(ax)
     ax.set_xlabel("distance from coil (mm)")
-    ax.set_ylabel("(measured - fit) / stderr")
-    ax.set_title("Dipole-fit residuals (dotted: +-1, dashed: +-3 standard errors)")
+    ax.set_ylabel("(measured - fit) / effective error")
+    ax.set_title("Fit residuals (dotted: +-1, dashed: +-3 errors; errors include the placement tolerance)")
     ax.grid(True, which="both", alpha=0.3)
     if any_fit:
         ax.legend(fontsize=8)

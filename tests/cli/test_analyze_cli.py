@@ -38,12 +38,13 @@ def test_json_is_one_object_of_the_documented_shape(runs, capsys):
     rc, out, err = _run(capsys, "analyze", runs / "small", "--json", "--bootstrap", "50")
     assert rc == 0
     obj = json.loads(out)
-    assert set(obj) == {"targets", "threshold_hz", "noise_hz"}
+    assert set(obj) == {"targets", "threshold_hz", "threshold_edf", "noise_hz", "placement_mm"}
     calls = {t["target"]: t["class"] for t in obj["targets"]}
     # common practice: ferrous lowers the frequency (washer, A < 0), non-ferrous raises it (foil)
     assert calls == {"washer": "ferrous", "foil": "non-ferrous"}
     for t in obj["targets"]:
-        assert set(t) == {"target", "class", "points", "range_mm", "range_ci_mm"}
+        assert set(t) == {"target", "class", "class_z", "class_p", "seen", "points", "fit", "power_law", "range_mm",
+                          "range_ci_mm", "range_basis", "range_dominant"}
         lo, hi = t["range_ci_mm"]
         assert lo <= t["range_mm"] <= hi
 
@@ -53,7 +54,7 @@ def test_several_runs_add_a_runs_list(runs, capsys):
     obj = json.loads(out)
     assert rc == 0 and [r["run"] for r in obj["runs"]] == ["small", "large"]
     for r in obj["runs"]:
-        assert set(r) == {"run", "targets", "threshold_hz", "noise_hz"}
+        assert set(r) == {"run", "targets", "threshold_hz", "threshold_edf", "noise_hz", "placement_mm"}
     washer = next(c for c in obj["comparison"] if c["target"] == "washer")
     assert set(washer["range_mm"]) == {"small", "large"}
 
@@ -125,7 +126,8 @@ def test_prediction_overlay_reports_measured_over_predicted(tmp_path, capsys):
     item = json.loads((out_dir / "result.json").read_text())["targets"][0]
     got = item["prediction"]["scale"] / scale
     assert abs(got - 0.7) <= 3 * item["prediction"]["scale_err"] / scale
-    assert item["fit"]["params"]["radius_mm"] == pytest.approx(coil.mean_radius_mm)
+    # with the coil known the fit is the finite-winding law of that coil (shape fixed by the file)
+    assert item["fit"]["model"] == "winding" and item["fit"]["fixed"]["shape"].startswith("coil file")
     assert item["prediction"]["freq_hz"] == pytest.approx(f0, abs=0.01)  # the run's baseline
     assert f"{item['prediction']['scale']:.3g}±" in (out_dir / "report.html").read_text()
 

@@ -1,4 +1,5 @@
-"""Ferrous / non-ferrous calls from the sign of significant shifts, polarity and reference checks."""
+"""Ferrous / non-ferrous / mixed calls from the sign of significant shifts, with their evidence;
+polarity and reference checks."""
 
 from __future__ import annotations
 
@@ -7,8 +8,10 @@ import math
 
 import pytest
 
-from coilshift.analysis.calibration.classify import (FERROUS, INDETERMINATE, NON_FERROUS, check_reference,
-                                         classify_points, is_significant)
+from scipy import stats
+
+from coilshift.analysis.calibration.classify import (FERROUS, INDETERMINATE, MIXED, NON_FERROUS, check_reference,
+                                                     classify_points, reference_checks)
 from coilshift.analysis.calibration.steps import Point
 
 MU0 = 4e-7 * math.pi
@@ -52,43 +55,62 @@ def test_ferrous_lowers_and_aluminium_raises_the_frequency():
     steel = _shift_sign_from_wait(0.005, 5e6, 100.0, 1e3)
     alu = _shift_sign_from_wait(0.01, 3.5e7, 1.0, 2e4)
     assert steel < 0 < alu
-    c = classify_points("steel", _points("steel", _curve(steel)), threshold_hz=0.05)
-    assert c.cls == FERROUS and c.n_negative == c.n_significant > 0
-    c = classify_points("alu", _points("alu", _curve(alu)), threshold_hz=0.05)
-    assert c.cls == NON_FERROUS and c.n_positive == c.n_significant > 0
+    c = classify_points("steel", _points("steel", _curve(steel)))
+    assert c.cls == FERROUS and c.n_negative == c.n_significant > 0 and c.z < 0
+    c = classify_points("alu", _points("alu", _curve(alu)))
+    assert c.cls == NON_FERROUS and c.n_positive == c.n_significant > 0 and c.z > 0
+
+
+def test_evidence_is_the_sidak_adjusted_p_of_the_strongest_point():
+    # the call's z is shift/stderr of the strongest point; its p-value two-sided normal, Sidak-
+    # adjusted over the target's n points: 1 - (1 - p)^n (Sidak 1967), computed here with scipy.stats
+    pts = _points("nail", [-0.05, -0.04, -0.01, 0.002], err=0.01)
+    c = classify_points("nail", pts)
+    p_one = 2 * stats.norm.sf(5.0)
+    assert c.cls == FERROUS and c.z == pytest.approx(-5.0)
+    assert c.p_value == pytest.approx(1 - (1 - p_one) ** 4, rel=1e-9)
+    # -4 sigma is significant too at the 1 % family-wise level (per-point level 0.0025 -> |z| >= 3.02)
+    assert c.n_significant == 2
 
 
 def test_plastic_target_is_indeterminate():
     # a non-conducting, non-permeable target: shifts are noise only (within 1-2 stderr)
-    c = classify_points("plastic", _points("plastic", [0.012, -0.008, 0.004, -0.015]), threshold_hz=0.05)
+    c = classify_points("plastic", _points("plastic", [0.012, -0.008, 0.004, -0.015]))
     assert c.cls == INDETERMINATE and c.n_significant == 0 and "no significant shift" in c.reason
+    assert math.isnan(c.z) and not c.significance.seen
 
 
-def test_mixed_signs_are_indeterminate():
+def test_one_point_at_three_sigma_is_not_a_detection_among_many():
+    # with 8 points, one at |z| = 3 (p = 0.0027) has an adjusted p of 1 - (1 - 0.0027)^8 = 0.021 > 1 %:
+    # the per-point rule "3 sigma" would call it; the family-wise test does not
+    shifts = [0.03] + [0.0] * 7
+    pts = [Point("x", float(d), s, 0.01, 400, 1) for d, s in zip(range(10, 90, 10), shifts)]
+    c = classify_points("x", pts)
+    assert c.cls == INDETERMINATE
+    assert c.significance.p_family == pytest.approx(1 - (1 - 2 * stats.norm.sf(3.0)) ** 8, rel=1e-9)
+
+
+def test_significant_shifts_of_both_signs_are_mixed():
     # a steel piece whose eddy response wins near the coil and permeable response farther out
-    c = classify_points("steel", _points("steel", [2.0, -0.9, -0.2, 0.001]), threshold_hz=0.05)
-    assert c.cls == INDETERMINATE and "disagree" in c.reason
+    c = classify_points("steel", _points("steel", [2.0, -0.9, -0.2, 0.001]))
+    assert c.cls == MIXED and "both signs" in c.reason
     assert (c.n_positive, c.n_negative) == (1, 2)
+    # the evidence names the strongest point of each sign
+    assert c.z == pytest.approx(200.0) and c.z_other == pytest.approx(-90.0)
 
 
 def test_inverted_polarity_flips_the_call_and_reference_flags_it():
     pts = _points("nail", _curve(-1.0))
-    normal = classify_points("nail", pts, 0.05, polarity="normal")
-    inverted = classify_points("nail", pts, 0.05, polarity="inverted")
+    normal = classify_points("nail", pts, polarity="normal")
+    inverted = classify_points("nail", pts, polarity="inverted")
     assert (normal.cls, inverted.cls) == (FERROUS, NON_FERROUS)
     # the user declares the nail ferrous: with inverted polarity that disagrees -> one warning
     warns = check_reference({"nail": inverted}, {"nail": FERROUS}, "inverted")
     assert len(warns) == 1 and "--polarity normal" in warns[0]
     assert check_reference({"nail": normal}, {"nail": FERROUS}, "normal") == []
     assert "not in the run" in check_reference({}, {"coin": NON_FERROUS}, "normal")[0]
-
-
-@pytest.mark.parametrize("shift, err, thr, expected", [
-    (0.375, 0.125, math.nan, True),  # 3 sigma exactly
-    (0.37, 0.125, math.nan, False),
-    (0.5, 0.1, 0.6, False),        # 5 sigma but below the threshold
-    (-0.7, 0.1, 0.6, True),
-    (0.7, math.nan, 0.6, False),   # no error estimate: not significant
-])
-def test_significance_rule(shift, err, thr, expected):
-    assert is_significant(shift, err, thr) is expected
+    # the same, as rows for the report's polarity table
+    rows = reference_checks({"nail": inverted, "coin": classify_points("coin", _points("coin", [0.0] * 4))},
+                            {"nail": FERROUS, "coin": NON_FERROUS, "bolt": FERROUS})
+    assert [(r.target, r.called, r.agrees) for r in rows] == [("nail", NON_FERROUS, False),
+                                                              ("coin", INDETERMINATE, None), ("bolt", None, None)]
