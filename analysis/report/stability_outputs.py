@@ -14,7 +14,7 @@ import pandas as pd
 from coilshift.logger.runfolder.atomic import write_json_atomic, write_text_atomic
 
 from coilshift.analysis.report.plots_stability import plot_drift, plot_sigma_tau
-from coilshift.analysis.stability.analyse import StabilityResult
+from coilshift.analysis.stability.result import StabilityResult
 
 SIGMA_TAU_PNG = "sigma_tau.png"
 DRIFT_PNG = "drift.png"
@@ -23,7 +23,8 @@ SUMMARY_JSON = "stability.json"
 
 
 def stability_csv(res: StabilityResult) -> str:
-    """One row per averaging time: deviations with intervals, edf and terms, then the noise type."""
+    """One row per averaging time: deviations with intervals, edf and terms, then the local slope
+    with its 95 % interval and the noise type it identifies (empty where it identifies none)."""
     cols = {"tau_s": res.tau_s, "m": res.m}
     for k in ("adev", "oadev", "mdev", "tdev"):
         unit = "s" if k == "tdev" else "hz"
@@ -35,9 +36,10 @@ def stability_csv(res: StabilityResult) -> str:
     for k in ("adev", "oadev", "mdev"):
         cols[f"{k}_frac"] = res.frac(k)
     cols["within_frame"] = res.within_frame()
-    cols["noise_alpha"] = res.alpha
-    cols["noise_type"] = res.noise_type
-    cols["noise_method"] = res.noise_method
+    nl = res.noise
+    cols["noise_slope"], cols["noise_slope_lo"], cols["noise_slope_hi"] = nl.slope, nl.slope_lo, nl.slope_hi
+    cols["noise_alpha"] = pd.array(nl.alpha, dtype="Int64")  # empty where no label
+    cols["noise_type"] = [x or "" for x in nl.label]
     return pd.DataFrame(cols).to_csv(index=False, float_format="%.10g", lineterminator="\n")
 
 

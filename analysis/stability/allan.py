@@ -47,6 +47,10 @@ class _WindowSums:
         self._cb = np.concatenate(([0], np.cumsum(bad, dtype=np.int64)))
         self.any_gap = bool(bad.any())
 
+    def gap_free(self, span: int) -> np.ndarray:
+        """For each start i = 0..n-span: True when samples i..i+span-1 have no gap."""
+        return (self._cb[span:] - self._cb[:-span]) == 0
+
     def sums(self, m: int) -> tuple[np.ndarray, np.ndarray]:
         """Window sums s[i] = y[i] + ... + y[i+m-1] for i = 0..N-m, and their gap-free mask."""
         s = self._cy[m:] - self._cy[:-m]
@@ -64,11 +68,11 @@ def _check_m(m_list) -> np.ndarray:
     return m
 
 
-def _deviation(y, m_list, span, terms) -> tuple[np.ndarray, np.ndarray]:
+def _deviation(y, m_list, span, terms, ws: "_WindowSums | None" = None) -> tuple[np.ndarray, np.ndarray]:
     """Shared driver: ``terms(window_sums, m)`` gives (term values, gap-free mask, normaliser);
     the deviation is sqrt(sum of squared gap-free terms / (normaliser * count)). Factors whose
-    ``span(m)`` exceeds the record get no term."""
-    ws = _WindowSums(_prepare(y))
+    ``span(m)`` exceeds the record get no term. ``ws`` reuses the window sums of ``y``."""
+    ws = _WindowSums(_prepare(y)) if ws is None else ws
     ms = _check_m(m_list)
     dev = np.full(ms.shape, np.nan)
     n_terms = np.zeros(ms.shape, dtype=np.int64)
@@ -95,11 +99,13 @@ def _oadev_terms(ws: _WindowSums, m: int):
 
 
 def _mdev_terms(ws: _WindowSums, m: int):
+    # term j = sum_{i=j}^{j+m-1} (S_{i+m} - S_i): a running sum of the overlapping terms (small
+    # numbers, so their cumulative sum keeps its precision); the term is gap-free when its whole
+    # span of 3m - 1 samples is
     d, ok, _ = _oadev_terms(ws, m)
-    bad = ~ok
-    cd = np.concatenate(([0.0], np.cumsum(np.where(bad, 0.0, d))))
-    cb = np.concatenate(([0], np.cumsum(bad, dtype=np.int64)))
-    return cd[m:] - cd[:-m], (cb[m:] - cb[:-m]) == 0, 2.0 * float(m) ** 4
+    cd = np.concatenate(([0.0], np.cumsum(np.where(ok, d, 0.0))))
+    k = ws.n - 3 * m + 2
+    return cd[m:m + k] - cd[:k], ws.gap_free(3 * m - 1)[:k], 2.0 * float(m) ** 4
 
 
 def adev(y, m_list) -> tuple[np.ndarray, np.ndarray]:
@@ -142,6 +148,15 @@ def mdev(y, m_list) -> tuple[np.ndarray, np.ndarray]:
     Parameters and returns as :func:`adev`.
     """
     return _deviation(y, m_list, lambda m: 3 * m - 1, _mdev_terms)
+
+
+def family(y, m_list) -> dict[str, tuple[np.ndarray, np.ndarray]]:
+    """:func:`adev`, :func:`oadev` and :func:`mdev` together (one set of running sums for all
+    three): ``{"adev": (dev, n_terms), "oadev": ..., "mdev": ...}``."""
+    ws = _WindowSums(_prepare(y))
+    return {"adev": _deviation(y, m_list, lambda m: 2 * m, _adev_terms, ws),
+            "oadev": _deviation(y, m_list, lambda m: 2 * m, _oadev_terms, ws),
+            "mdev": _deviation(y, m_list, lambda m: 3 * m - 1, _mdev_terms, ws)}
 
 
 def tdev(y, m_list, tau0_s: float) -> tuple[np.ndarray, np.ndarray]:

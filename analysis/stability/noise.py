@@ -1,5 +1,4 @@
-"""Noise on the averaging-time axis: the dominant noise type per tau, and the Allan deviation at a
-dwell used as the noise figure of a detection threshold."""
+"""The Allan deviation at a dwell, used as the noise figure of a detection threshold."""
 
 from __future__ import annotations
 
@@ -10,50 +9,7 @@ import numpy as np
 from coilshift.logger.errors import InputError
 
 from coilshift.analysis.stability import allan
-from coilshift.analysis.stability.allan_edf import NOISE_NAMES, alpha_from_mdev_slope, noise_id_acf, round_alpha
 from coilshift.analysis.stability.grid import to_uniform
-
-
-def dominant_noise_per_tau(y: np.ndarray, ms: np.ndarray, mdev_frac: np.ndarray):
-    """Dominant power-law noise per averaging time.
-
-    The lag-1 autocorrelation method of Riley & Greenhall (2004) where at least 30 averaged
-    points remain (:func:`~.allan_edf.noise_id_acf`), else the local log-log slope of the
-    modified Allan deviation (SP 1065 Table 11, :func:`~.allan_edf.alpha_from_mdev_slope`).
-
-    Parameters
-    ----------
-    y : frequency on the uniform grid, NaN at gaps
-    ms : averaging factors, increasing
-    mdev_frac : fractional modified Allan deviation at ``ms``
-
-    Returns
-    -------
-    alpha : int64 array, the power-law exponent rounded to a noise type, per tau
-    names : the noise names (a slope steeper than random-walk FM is called drift)
-    methods : which method identified each
-    """
-    logt = np.log(ms.astype(float))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        logd = np.log(mdev_frac)
-    alphas, names, methods = [], [], []
-    for i, m in enumerate(ms):
-        got = noise_id_acf(y, int(m))
-        if got is not None:
-            a, method = got[0], "lag-1 autocorrelation"
-        else:
-            lo, hi = max(i - 1, 0), min(i + 1, ms.size - 1)
-            if hi > lo and np.isfinite(logd[lo]) and np.isfinite(logd[hi]) and logd[lo] > -np.inf:
-                a = alpha_from_mdev_slope((logd[hi] - logd[lo]) / (logt[hi] - logt[lo]))
-                method = "MDEV slope"
-            else:
-                a, method = 0.0, "assumed white FM"
-        ai = round_alpha(a)
-        alphas.append(ai)
-        # a slope steeper than random-walk FM is the signature of drift (ADEV ~ tau^+1)
-        names.append("drift or random-walk FM" if a < -2.5 else NOISE_NAMES[ai])
-        methods.append(method)
-    return np.asarray(alphas, dtype=np.int64), names, methods
 
 
 def noise_at_tau_hz(t_s, freq_hz, tau_s: float) -> float:

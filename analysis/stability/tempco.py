@@ -1,15 +1,19 @@
-"""Temperature coefficient: frequency regressed on a temperature record, and that record's reader."""
+"""Temperature coefficient: frequency regressed on a temperature record (generalised least squares
+under the record's noise model), and that record's reader."""
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
 
 from coilshift.logger.errors import InputError
 
-from coilshift.analysis.stability.drift import fit_line_ar1
+from coilshift.analysis.stability.blocks import Blocks, block_length
+from coilshift.analysis.stability.gls import Whitener, gls_fit
 from coilshift.analysis.stability.grid import UniformSeries
+from coilshift.analysis.stability.noise_model import NoiseModel
 
 
 @dataclass
@@ -23,16 +27,19 @@ class TempCo:
     temp_max_c: float
     n_frames: int
     r_squared: float
+    note: str = ""  # why the uncertainty is not determined (empty when it is)
 
 
-def temperature_coefficient(series: UniformSeries, time_s, temp_c, nominal_hz: float,
-                            source: str = "temperature") -> TempCo:
-    """Frequency vs temperature slope, Hz/degC, by least squares.
+def temperature_coefficient(series: UniformSeries, time_s, temp_c, nominal_hz: float, noise: NoiseModel,
+                            frame_s: float | None = None, source: str = "temperature") -> TempCo:
+    """Frequency vs temperature slope, Hz/degC, by generalised least squares.
 
     Temperature is interpolated linearly onto the grid times; frames outside the temperature
-    record are left out (no extrapolation). The uncertainty allows for AR(1) residuals as in
-    :func:`fit_line_ar1`. Time-linear drift that is not thermal is not separated: if the
-    temperature also trends, the coefficient absorbs it (compare with the drift figure).
+    record are left out (no extrapolation). Frequency is regressed on temperature over block
+    means weighted by the record's noise model (white FM plus random-walk FM, :mod:`.gls`), so
+    the uncertainty allows for the oscillator's slow wander. Time-linear drift that is not
+    thermal is not separated: if the temperature also trends, the coefficient absorbs it
+    (compare with the drift figure). The uncertainty is NaN when it is not determined.
     """
     ts = np.asarray(time_s, float)
     tc = np.asarray(temp_c, float)
@@ -45,13 +52,30 @@ def temperature_coefficient(series: UniformSeries, time_s, temp_c, nominal_hz: f
         raise InputError(f"{source}: fewer than three frames fall inside the temperature record")
     if np.ptp(temp[ok]) <= 0:
         raise InputError(f"{source}: the temperature does not change over the log; no coefficient")
-    fit = fit_line_ar1(temp, f)
-    y = f - (fit.intercept + fit.slope * (temp - fit.x_ref))
+    sub = UniformSeries(series.t0_s, series.tau0_s, f, series.n_frames, series.n_unusable, series.n_missing,
+                        series.jitter_rms)
+    blocks = Blocks(sub, block_length(f.size, series.tau0_s, frame_s))
+    t_mean = blocks.means(temp)
+    slope, u = math.nan, math.nan
+    sw2, sr2 = noise.sample_variances(series.tau0_s)
+    if blocks.n >= 3 and np.isfinite(sw2 + sr2) and sw2 + sr2 > 0 and np.ptp(t_mean) > 0:
+        w = Whitener(blocks.covariance_parts(), sw2, sr2)
+        beta, cov, _ = gls_fit(w.whiten(np.column_stack([np.ones(blocks.n), t_mean - t_mean.mean()])),
+                               w.whiten(blocks.mean_hz - blocks.mean_hz.mean()))
+        slope = float(beta[1])
+        u = float(np.sqrt(cov[1, 1])) if np.isfinite(cov[1, 1]) and cov[1, 1] > 0 else math.nan
+    note = ""
+    if not math.isfinite(slope):  # too few blocks for the weighted fit: ordinary least squares, no error
+        slope = float(np.polyfit(temp[ok], f[ok], 1)[0])
+        note = f"too few usable blocks ({blocks.n}) or no noise model for a weighted fit"
+    elif not math.isfinite(u):
+        note = "the temperature does not vary independently of the fit's other terms"
+    resid = f[ok] - f[ok].mean() - slope * (temp[ok] - temp[ok].mean())
     ss_tot = float(np.sum((f[ok] - f[ok].mean()) ** 2))
-    r2 = 1.0 - float(np.nansum(y ** 2)) / ss_tot if ss_tot > 0 else float("nan")
-    return TempCo(hz_per_degc=fit.slope, u_hz_per_degc=fit.u_slope,
-                  ppm_per_degc=fit.slope / nominal_hz * 1e6, temp_min_c=float(np.min(temp[ok])),
-                  temp_max_c=float(np.max(temp[ok])), n_frames=int(ok.sum()), r_squared=r2)
+    r2 = 1.0 - float(np.sum(resid ** 2)) / ss_tot if ss_tot > 0 else float("nan")
+    return TempCo(hz_per_degc=slope, u_hz_per_degc=u,
+                  ppm_per_degc=slope / nominal_hz * 1e6, temp_min_c=float(np.min(temp[ok])),
+                  temp_max_c=float(np.max(temp[ok])), n_frames=int(ok.sum()), r_squared=r2, note=note)
 
 
 def read_temperature_csv(path) -> tuple[np.ndarray, np.ndarray]:

@@ -1,4 +1,5 @@
-"""``coilshift stability`` end to end: table, JSON, output folder, refusals."""
+"""``coilshift stability`` end to end: table, JSON, output folder, the part of the log used,
+a calibration log's baselines, figures that are not determined, refusals."""
 
 from __future__ import annotations
 
@@ -12,7 +13,8 @@ from coilshift.cli.main import main
 from coilshift.logger.runfolder import flags
 from coilshift.logger.runfolder.frames import FrameTable
 from coilshift.logger.runfolder.folders import prepare_run_dir
-from coilshift.logger.runfolder.writer import RunWriter
+from coilshift.logger.runfolder.markers import Marker, markers_to_csv
+from coilshift.logger.runfolder.writer import RunWriter, write_markers_copy
 
 
 def _frames(n=3000, tau0=0.02, seed=0):
@@ -71,7 +73,8 @@ def test_json_keys_and_values(which, request, capsys):
 def test_table_text(run_dir, capsys):
     assert main(["stability", str(run_dir)]) == 0
     text = capsys.readouterr().out
-    assert "OADEV_Hz" in text and "drift" in text and "warm-up" in text and "white FM" in text
+    assert "OADEV_Hz" in text and "settled drift:" in text and "warm-up" in text and "white FM" in text
+    assert "deviations over" in text and "inf" not in text
 
 
 def test_output_folder_and_refusal_to_overwrite(run_dir, tmp_path, capsys):
@@ -112,7 +115,77 @@ def test_bad_input_one_line_nothing_written(tmp_path, capsys, content, match):
     assert not out.exists()
 
 
-@pytest.mark.parametrize("opt", [["--confidence", "1.5"], ["--settle", "-1"], ["--window", "0"]])
+@pytest.mark.parametrize("opt", [["--confidence", "1.5"], ["--settle", "-1"], ["--start-s", "nan"],
+                                 ["--start-s", "1e6"], ["--start-s", "10", "--whole-log"]])
 def test_bad_options(run_dir, capsys, opt):
     assert main(["stability", str(run_dir), *opt]) == 2
-    assert capsys.readouterr().err.count("\n") == 1
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "Traceback" not in err
+
+
+def test_part_of_the_log_is_said(run_dir, capsys):
+    # default: the settled part (this log has no warm-up: settled from its first frame)
+    assert main(["stability", str(run_dir), "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["span"]["kind"] == "settled" and "settled" in out["span"]["reason"]
+    assert main(["stability", str(run_dir), "--json", "--start-s", "20"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["span"]["kind"] == "start" and out["span"]["start_s"] >= 20 and "as asked" in out["span"]["reason"]
+    assert main(["stability", str(run_dir), "--whole-log"]) == 0
+    assert "the whole log, as asked" in capsys.readouterr().out
+
+
+def _calibration_run(tmp_path, drift_hz_per_s=2e-3):
+    """A calibration-like log: 4 s baselines around 4 s target stretches that pull the frequency
+    down by 6 Hz (steel close to the coil), white FM 0.02 Hz per frame, a linear drift."""
+    rng = np.random.default_rng(9)
+    n, tau0 = 6000, 0.02
+    t = np.arange(n) * tau0
+    f = 25000 + drift_hz_per_s * t + 0.02 * rng.standard_normal(n)
+    markers = []
+    for k, start in enumerate(np.arange(0.0, 120.0, 8.0)):
+        markers.append(Marker(start, start + 4.0, "baseline", float("nan")))
+        if start + 8.0 <= 120.0:
+            markers.append(Marker(start + 4.0, start + 8.0, "steel", 20.0 + 10 * k))
+    target = np.zeros(n, bool)
+    for m in markers:
+        if not m.is_baseline:
+            target |= (t > m.start_s) & (t < m.end_s)
+    f[target] -= 6.0
+    d = prepare_run_dir(tmp_path / "cal")
+    with RunWriter(d, {"source": {"kind": "test"}, "start_utc": "2026-12-01T12:00:00.000Z"}) as w:
+        w.append(FrameTable(t, f, np.full(n, -12.0), np.full(n, 40.0), np.zeros(n, dtype=np.int64)))
+    write_markers_copy(d, markers_to_csv(markers))
+    return d
+
+
+def test_calibration_log_uses_its_baselines_only(tmp_path, capsys):
+    d = _calibration_run(tmp_path)
+    assert main(["stability", str(d)]) == 0
+    text = capsys.readouterr().out
+    assert "baselines only" in text and "inf" not in text
+    assert main(["stability", str(d), "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["baselines_only"]["n_stretches"] == 15
+    # the drift of the baselines (0.12 Hz/min) within 3 of its standard uncertainties, and the
+    # targets' 6 Hz steps nowhere in the deviations: white FM 0.02 Hz per frame gives
+    # sigma(tau) = 0.02 / sqrt(m) (SP 1065 Table 11), inside the 68 % interval widened to 3 sigma
+    assert out["drift_u_hz_per_min"] is not None
+    assert abs(out["drift_hz_per_min"] - 0.12) <= 3 * out["drift_u_hz_per_min"]
+    assert max(out["oadev_hz"]) < 0.05
+
+
+def test_undetermined_drift_is_said_with_its_reason(tmp_path, capsys):
+    # a warm-up far slower than the log: no settled drift, and never "+- inf"
+    n, tau0 = 4000, 0.05
+    t = np.arange(n) * tau0
+    f = 9000 + 2.0 * np.exp(-t / 2000.0) + 0.003 * np.random.default_rng(10).standard_normal(n)
+    p = tmp_path / "slow.csv"
+    p.write_text("t_s,freq_hz\n" + "".join(f"{a:.4f},{b:.6f}\n" for a, b in zip(t, f)))
+    assert main(["stability", str(p)]) == 0
+    text = capsys.readouterr().out
+    assert "settled drift: not determined (" in text and "longer than the log" in text
+    assert "inf" not in text.replace("info", "")
+    assert main(["stability", str(p), "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["drift_hz_per_min"] is None and out["drift"]["determined"] is False

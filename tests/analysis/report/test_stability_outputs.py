@@ -49,8 +49,11 @@ def test_csv_one_row_per_tau(result):
     rows = list(csv.DictReader(io.StringIO(stability_csv(result))))
     assert len(rows) == result.tau_s.size
     head = list(rows[0])
-    assert head[:3] == ["tau_s", "m", "adev_hz"] and head[-3:] == ["noise_alpha", "noise_type", "noise_method"]
+    assert head[:3] == ["tau_s", "m", "adev_hz"]
+    assert head[-5:] == ["noise_slope", "noise_slope_lo", "noise_slope_hi", "noise_alpha", "noise_type"]
     for k in ("adev_hz", "oadev_lo_hz", "tdev_s", "tdev_hi_s", "mdev_edf", "oadev_n_terms", "oadev_frac"):
         assert k in head
     np.testing.assert_allclose([float(r["oadev_hz"]) for r in rows], result.oadev_hz, rtol=1e-9)
     assert [r["within_frame"] for r in rows] == [str(v) for v in result.within_frame()]
+    # a row names a type only where the labeller did, and leaves it empty elsewhere
+    assert [r["noise_type"] or None for r in rows] == result.noise_type
