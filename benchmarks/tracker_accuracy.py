@@ -1,10 +1,11 @@
 """Tracker accuracy and speed: RMS error against the Cramer-Rao bound, bias, fundamental picking on
 pulse waves and throughput, side by side with a plain spectrogram-argmax + parabolic tracker; and
-every sub-bin estimator the fine stage can use (``TrackerSettings.fine_estimator``) inside the tracker.
+every sub-bin estimator the fine stage can use (``TrackerSettings.fine_estimator``) inside the tracker;
+and SoX-generated tones (an independent generator), band-limited beside aliased.
 
 Usage::
 
-    python benchmarks/tracker_accuracy.py          # full run (about two minutes)
+    python benchmarks/tracker_accuracy.py          # full run (a few minutes)
     python benchmarks/tracker_accuracy.py --quick  # short run
 
 SNR is eta = A^2 / (2 s^2) per sample (REFERENCES.md section 2). The Cramer-Rao bound for one real
@@ -24,10 +25,15 @@ import argparse  # noqa: E402
 import math  # noqa: E402
 import time  # noqa: E402
 
+import sys  # noqa: E402
+from pathlib import Path  # noqa: E402
+
 import numpy as np  # noqa: E402
 import scipy.fft as sfft  # noqa: E402
+import soundfile as sf  # noqa: E402
 from numpy.lib.stride_tricks import sliding_window_view  # noqa: E402
 
+from coilshift.logger.runfolder import flags  # noqa: E402
 from coilshift.logger.tracking import estimators as est  # noqa: E402
 from coilshift.logger.pipeline.batch import REPLAY_BLOCK_S  # noqa: E402
 from coilshift.logger.tracking.sinefit import fit_sine4_frames  # noqa: E402
@@ -35,6 +41,8 @@ from coilshift.logger.tracking.settings import FINE_ESTIMATORS, TrackerSettings 
 from coilshift.logger.tracking.tracker import FrameTracker, track_array  # noqa: E402
 
 FS = 48000.0
+# the SoX tone generator shared with the tests
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
 
 
 def crb_std_hz(eta: float, n: int, fs: float = FS) -> float:
@@ -222,6 +230,178 @@ def throughput(seconds, repeats, seed=3):
     return result
 
 
+def sox_table(freqs, rates, seconds, band_limited, workdir):
+    """The tracker on SoX tones (tests/soxgen.py): per waveform, how many frames stay usable and how
+    close they are. Truth: SoX's synth computes the phase as freq * n / rate (src/synth.c)."""
+    from soxgen import WAVES, synth
+
+    rows = []
+    for wave in WAVES:
+        frames = usable = on_f0 = silent = aliased = alias_close = 0
+        errs, every_err, file_medians = [], [], []
+        cpu = audio_s = 0.0
+        for i, f0 in enumerate(freqs):
+            for j, rate in enumerate(rates):
+                bits = (16, 24)[(i + j) % 2]
+                x, fs = sf.read(synth(workdir, wave, f0, rate, bits, seconds, band_limited))
+                c0 = time.process_time()
+                tab = track_array(x, fs)
+                cpu += time.process_time() - c0
+                audio_s += x.size / fs
+                err = np.abs(tab.freq_hz - f0)
+                keep = (tab.flags & flags.UNUSABLE) == 0
+                frames += len(tab)
+                usable += int(keep.sum())
+                on_f0 += int(np.sum(keep & (err <= 0.1)))
+                silent += int(np.sum(keep & ~(err <= 0.1)))
+                aliased += int(np.sum((tab.flags & flags.ALIASED) != 0))
+                alias_close += int(np.sum((tab.flags & flags.ALIAS_CLOSE) != 0))
+                errs.append(err[keep])
+                every_err.append(err)
+                if keep.any():
+                    file_medians.append(float(np.median(err[keep])))
+        kept = np.concatenate(errs)
+        every = np.concatenate(every_err)
+        rows.append({"wave": wave, "files": len(freqs) * len(rates), "frames": frames, "usable": usable,
+                     "median_all_mhz": 1e3 * float(np.nanmedian(every)),
+                     "on_f0": on_f0, "silent": silent, "aliased": aliased, "alias_close": alias_close,
+                     "median_mhz": 1e3 * float(np.median(kept)) if kept.size else float("nan"),
+                     "worst_file_mhz": 1e3 * max(file_medians) if file_medians else float("nan"),
+                     "speed": audio_s / cpu if cpu > 0 else float("nan")})
+    return rows
+
+
+def print_sox_tables(quick: bool) -> None:
+    """The SoX sets, band-limited beside aliased (skipped with a line when SoX is missing)."""
+    import shutil
+    import tempfile
+
+    if shutil.which("sox") is None:
+        print("## SoX tones: skipped (SoX is not installed)")
+        print()
+        return
+    n_f = 4 if quick else 12
+    freqs = tuple(round(300.0 * 40.0 ** (i / (n_f - 1)) * 1.0037, 2) for i in range(n_f))  # 301.11 .. 12044.4
+    freqs = tuple(min(f, 11987.6) for f in freqs)
+    rates, seconds = (44100, 48000, 96000), (0.5 if quick else 1.0)
+    with tempfile.TemporaryDirectory(prefix="coilshift-sox-") as workdir:
+        for band_limited in (True, False):
+            label = ("band-limited (synthesised at 256 x the rate, then SoX rate -v)" if band_limited
+                     else "aliased (synthesised at the file's rate: harmonics above fs/2 fold back)")
+            print(f"## SoX tones, {label}: {n_f} fundamentals 300 Hz - 12 kHz x 44.1/48/96 kHz, "
+                  f"16 and 24 bit, {seconds:g} s each")
+            print()
+            print("| waveform | frames | usable | unflagged within 0.1 Hz | unflagged off by > 0.1 Hz | aliased | "
+                  "alias_close | median error, unflagged (mHz) | worst file median (mHz) | median error, all frames "
+                  "(mHz) | x real time |")
+            print("|---|---|---|---|---|---|---|---|---|---|---|")
+            for r in sox_table(freqs, rates, seconds, band_limited, workdir):
+                share = r["on_f0"] / r["usable"] if r["usable"] else float("nan")
+                print(f"| {r['wave']} | {r['frames']} | {100 * r['usable'] / r['frames']:.0f} % | {100 * share:.1f} % | "
+                      f"{r['silent']} | {100 * r['aliased'] / r['frames']:.0f} % | {100 * r['alias_close'] / r['frames']:.0f} % | "
+                      f"{r['median_mhz']:.3f} | {r['worst_file_mhz']:.3f} | {r['median_all_mhz']:.3f} | {r['speed']:.0f} x |")
+            print()
+        long_freqs = freqs[::3] if quick else freqs[::2]
+        print(f"## Aliased square, sawtooth and 10 % pulse (SoX, 16 bit, 44.1 and 48 kHz, {len(long_freqs)} fundamentals, "
+              "3 s each) with longer frames")
+        print()
+        print("| frame (ms) | usable | median error, all frames (mHz) | 90th percentile (mHz) |")
+        print("|---|---|---|---|")
+        frames_ms = (85.0, 340.0) if quick else (85.0, 340.0, 1000.0)
+        for r in alias_frame_table(frames_ms, long_freqs, (44100, 48000), 3.0, workdir):
+            print(f"| {r['frame_ms']:g} | {100 * r['usable']:.0f} % | {r['median_mhz']:.3f} | {r['p90_mhz']:.3f} |")
+        print()
+
+
+def edge_table(n_trials, seed=11):
+    """The stationarity statistic (tracking/edges.py) in noise and for drifts, cuts and jumps.
+
+    Frames of 4096 samples at 48 kHz, a 1234 Hz tone at a random place between bins with a random
+    phase; the misfit is read from the tracker's fine stage. Returns rows of (case, misfit mean
+    and largest over the trials, share of frames flagged edge, share dropped by analysis (any
+    flag in UNUSABLE), largest error in bins of the frames not dropped, against the frequency the
+    frame holds longest (the mid-frame frequency of a drift, the mean frequency of a step of less
+    than a bin)).
+    """
+    from coilshift.logger.tracking import analyse as analyse_mod
+
+    n = 4096
+    settings = TrackerSettings(frame_ms=85.34, hop_ms=1000 * n / FS)
+    rng = np.random.default_rng(seed)
+    i = np.arange(n)
+    seen = {}
+    real_edges = analyse_mod.edge_frames
+
+    def spy(plan, misfit, snr_db):
+        seen["misfit"] = misfit.copy()
+        return real_edges(plan, misfit, snr_db)
+
+    def case(make):
+        misfit, edge, dropped, err = [], [], [], [0.0]
+        for _ in range(n_trials):
+            f = 1234.0 * n / FS + rng.uniform(0, 1)
+            x, truth = make(f, rng.uniform(0, 2 * np.pi))
+            tab = track_array(0.5 * x, FS, settings)
+            misfit.append(seen["misfit"][0] if np.isfinite(tab.freq_hz[0]) else np.nan)
+            edge.append(bool(tab.flags[0] & flags.EDGE))
+            dropped.append(bool(tab.flags[0] & flags.UNUSABLE))
+            if not dropped[-1]:
+                err.append(abs(tab.freq_hz[0] * n / FS - truth))
+        return (float(np.nanmean(misfit)), float(np.nanmax(misfit)), float(np.mean(edge)), float(np.mean(dropped)),
+                float(np.max(err)))
+
+    def noisy(snr_db):
+        s = 1 / math.sqrt(2 * 10 ** (snr_db / 10))
+        return lambda f, ph: (np.cos(2 * np.pi * f * i / n + ph) + s * rng.standard_normal(n), f)
+
+    def chirp(total_bins):  # frequency f - total/2 .. f + total/2 across the frame
+        return lambda f, ph: (np.cos(2 * np.pi * (f * i / n + total_bins * (i * i / (2 * n) - i / 2) / n) + ph), f)
+
+    def cut(kept):  # the tone stops after this share of the frame
+        return lambda f, ph: (np.where(i < kept * n, np.cos(2 * np.pi * f * i / n + ph), 0.0), f)
+
+    def jump(bins, share):  # the last `share` of the frame at f + bins, phase continuous
+        def make(f, ph):
+            f_i = np.where(i < (1 - share) * n, f, f + bins)
+            # truth: the frame's mean frequency for a step it cannot resolve, else the longer part's
+            truth = f + share * bins if bins < 1 else (f if share <= 0.5 else f + bins)
+            return np.cos(2 * np.pi * np.cumsum(f_i) / n + ph), truth
+        return make
+
+    analyse_mod.edge_frames = spy
+    try:
+        cases = [(f"noise, SNR {snr} dB", noisy(snr)) for snr in (40, 20, 10, 0, -10)]
+        cases += [(f"drift of {b:g} bin across the frame", chirp(b)) for b in (0.5, 1.0, 2.0)]
+        cases += [(f"tone stops after {100 * k:g} % of the frame", cut(k)) for k in (0.99, 0.97, 0.95, 0.9, 0.7)]
+        cases += [(f"jump by {b:g} bin for the last {100 * sh:g} %", jump(b, sh)) for b, sh in
+                  ((1.7, 0.06), (1.7, 0.3), (17.0, 0.1), (17.0, 0.5), (0.3, 0.5))]
+        return [(name, *case(make)) for name, make in cases]
+    finally:
+        analyse_mod.edge_frames = real_edges
+
+
+def alias_frame_table(frame_ms_list, freqs, rates, seconds, workdir):
+    """Aliased square, sawtooth and 10 % pulse (SoX) tracked with longer frames: usable share and
+    median error of all frames (the folded lines too close to separate weigh less per bin)."""
+    from soxgen import synth
+
+    rows = []
+    for frame_ms in frame_ms_list:
+        settings = TrackerSettings(frame_ms=frame_ms)
+        usable, errs = [], []
+        for wave in ("square", "sawtooth", "pulse10"):
+            for f0 in freqs:
+                for rate in rates:
+                    x, fs = sf.read(synth(workdir, wave, f0, rate, 16, seconds, False))
+                    tab = track_array(x, fs, settings)
+                    usable.append(np.mean((tab.flags & flags.UNUSABLE) == 0))
+                    errs.append(np.abs(tab.freq_hz - f0))
+        e = np.concatenate(errs)
+        rows.append({"frame_ms": frame_ms, "usable": float(np.mean(usable)), "median_mhz": 1e3 * float(np.median(e)),
+                     "p90_mhz": 1e3 * float(np.quantile(e, 0.9))})
+    return rows
+
+
 def _streamed(x, block):
     tracker = FrameTracker(FS)
     for i in range(0, x.size, block):
@@ -300,6 +480,15 @@ def main(argv=None) -> int:
     for r in pulse_table(pulse_s):
         print(f"| {r['f0']:.2f} | {r['duty']:.2f} | {'yes' if r['coupling'] else 'no'} | {r['strongest']} | "
               f"{100 * r['ok']:.0f} % | {100 * r['ok_base']:.0f} % |")
+    print()
+    print_sox_tables(args.quick)
+    trials = 30 if args.quick else 200
+    print(f"## Stationarity: the one-tone misfit (tracking/edges.py), {trials} frames per case, 1234 Hz at 48 kHz")
+    print()
+    print("| case | misfit, mean | misfit, largest | flagged edge | dropped by analysis | largest error kept (bin) |")
+    print("|---|---|---|---|---|---|")
+    for name, mean, top, share, dropped, err in edge_table(trials):
+        print(f"| {name} | {mean:.4f} | {top:.4f} | {100 * share:.1f} % | {100 * dropped:.1f} % | {err:.2e} |")
     print()
     load_before = os.getloadavg()[0]
     speeds = throughput(speed_s, repeats)

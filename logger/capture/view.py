@@ -1,8 +1,9 @@
 """Live readout of a running capture: a terminal panel with keys, a plain line, an optional plot.
 
 :class:`TerminalPanel` redraws a small panel a few times a second with plain ANSI codes
-(frequency, shift from the baseline, a level meter with a clipping warning, SNR, elapsed time,
-faults) and reads single keys from the terminal: re-zero, add a marker (typed label), quit.
+(frequency, or NO TONE while the latest frame has none, shift from the baseline, a level meter
+with a clipping warning, SNR, elapsed time, faults, frames without a tone so far) and reads
+single keys from the terminal: re-zero, add a marker (typed label), quit.
 :class:`PlainLines` prints one line a second when stdout is not a terminal (a log file, a pipe).
 :class:`LivePlot` shows frequency and shift in a matplotlib window when a display is available.
 
@@ -20,6 +21,7 @@ import time
 from collections import deque
 
 from coilshift.logger.errors import InputError
+from coilshift.logger.runfolder import flags as _flags
 
 KEY_REZERO = "z"
 KEY_MARKER = "m"
@@ -52,15 +54,32 @@ def level_meter(peak_dbfs: float, width: int = METER_WIDTH, range_db: float = ME
     return "[" + "#" * filled + "." * (width - filled) + "]"
 
 
+#: what the readout shows instead of a frequency while the latest frame has no tone
+NO_TONE_TEXT = "NO TONE"
+
+
+def no_tone(snap) -> bool:
+    """True when the latest frame found no tone (its frequency is empty)."""
+    return bool(snap.frame_flags & _flags.NO_TONE)
+
+
+def unusable_words(snap) -> str:
+    """The latest frame's flags that keep it out of analysis, other than no_tone ('' for none)."""
+    return _flags.to_text(snap.frame_flags & _flags.UNUSABLE & ~_flags.NO_TONE)
+
+
 def status_line(snap) -> str:
     """One line summing up a snapshot (for pipes, log files and the end of a run)."""
     parts = [f"t={fmt_elapsed(snap.elapsed_s)}",
-             "f=" + _num(snap.freq_hz, ".3f", "Hz"),
+             "f=" + (NO_TONE_TEXT if no_tone(snap) else _num(snap.freq_hz, ".3f", "Hz")),
              "shift=" + (_num(snap.shift_hz, "+.3f", "Hz") if not snap.baseline_pending or
                          math.isfinite(snap.shift_hz) else "(baseline pending)"),
              "level=" + _num(snap.peak_dbfs, ".1f", "dBFS", "-inf"),
              "snr=" + _num(snap.snr_db, ".1f", "dB"),
-             f"faults={snap.faults}"]
+             f"faults={snap.faults}",
+             f"no_tone_frames={snap.no_tone_frames}"]
+    if unusable_words(snap):
+        parts.append(f"unusable={unusable_words(snap)}")
     if snap.clipping:
         parts.append("CLIPPING")
     return "  ".join(parts)
@@ -75,16 +94,23 @@ def panel_lines(snap, title: str, prompt: str | None, note: str) -> list[str]:
     else:
         base = _num(snap.baseline_hz, ".3f", "Hz")
     clip = "   CLIPPING: lower the input level" if snap.clipping else ""
+    if no_tone(snap):
+        freq = f"{NO_TONE_TEXT:>15}   check the wiring and the input level"
+    else:
+        freq = _num(snap.freq_hz, '12.3f', 'Hz')
+        if unusable_words(snap):
+            freq += f"   not used by analysis: {unusable_words(snap)}"
     lines = [
         title,
         "",
         f"  elapsed    {fmt_elapsed(snap.elapsed_s)}",
-        f"  frequency  {_num(snap.freq_hz, '12.3f', 'Hz')}",
+        f"  frequency  {freq}",
         f"  shift      {_num(snap.shift_hz, '+12.3f', 'Hz')}   baseline {base}",
         f"  level      {_num(snap.peak_dbfs, '6.1f', 'dBFS', '  -inf')} {level_meter(snap.peak_dbfs)}{clip}",
         f"  SNR        {_num(snap.snr_db, '6.1f', 'dB')}   tone {_num(snap.amp_dbfs, '.1f', 'dBFS')}",
         f"  faults     {snap.faults}  (overflows {snap.overflows}, gaps {snap.gaps}, "
         f"lost {snap.lost_samples} samples, device errors {snap.device_errors})",
+        f"  no tone    {snap.no_tone_frames} frames",
         f"  markers    {snap.markers}" + (f"   open: {snap.open_marker}" if snap.open_marker else ""),
         f"  log rows   {snap.rows}   queue {100 * snap.queue_fill:.0f}%",
         "",

@@ -49,6 +49,24 @@ def _spread(f: np.ndarray) -> float:
     return float(MAD_TO_SIGMA * np.median(np.abs(f - np.median(f)))) if len(f) else float("nan")
 
 
+def _why_dropped(frames: FrameTable, sel: np.ndarray) -> str:
+    """``": its N frames with a tone are flagged ..."`` when flags, not silence, emptied ``sel``."""
+    toned = sel & np.isfinite(frames.freq_hz)
+    if not toned.any():
+        return ""
+    counts = {}
+    for bit, word in _flags.NAMES.items():
+        n = int(np.count_nonzero(frames.flags[toned] & bit & _flags.UNUSABLE))
+        if n:
+            counts[word] = n
+    text = ", ".join(f"{word} {n}" for word, n in counts.items())
+    hint = ""
+    if "alias_close" in counts:
+        hint = (f"; the input has no anti-alias filter and folded harmonics sit too close to the tone: "
+                f"longer frames ({setting('frame_ms')} 1000) separate them")
+    return f": its {int(toned.sum())} frames with a tone are flagged ({text}){hint}"
+
+
 def baseline_from_start(frames: FrameTable, seconds: float = 2.0, name: str = "recording") -> Baseline:
     """Median frequency of the frames whose centre lies in the first ``seconds`` of the run.
 
@@ -59,10 +77,12 @@ def baseline_from_start(frames: FrameTable, seconds: float = 2.0, name: str = "r
         raise InputError(f"baseline: the window must be positive, got {seconds} s")
     if len(frames) == 0:
         raise InputError(f"{name}: no frames to set a baseline from")
-    sel = _good(frames, frames.t_s <= seconds)
+    window = frames.t_s <= seconds
+    sel = _good(frames, window)
     if not sel.any():
-        raise InputError(f"{name}: no usable tone in the first {seconds:g} s to set the baseline "
-                         f"(choose another {setting('baseline_s')} or give markers with baseline rows)")
+        raise InputError(f"{name}: no usable tone in the first {seconds:g} s to set the baseline"
+                         f"{_why_dropped(frames, window)} (choose another {setting('baseline_s')} "
+                         "or give markers with baseline rows)")
     f = frames.freq_hz[sel]
     return Baseline(float(np.median(f)), METHOD_START,
                     {"window_s": float(seconds), "frames_used": int(len(f)), "spread_hz": _spread(f),

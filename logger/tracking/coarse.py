@@ -17,9 +17,11 @@ import numpy as np
 import scipy.fft as sfft
 
 from coilshift.logger.tracking.estimators import grandke_hann
+from coilshift.logger.tracking.fundamental import fundamental_guess
 from coilshift.logger.tracking.kernels import clamp
 from coilshift.logger.tracking.plan import Plan
-from coilshift.logger.tracking.settings import HUM_PEAK_RATIO, HUM_STRONGER, LOCAL_CELLS, SUBHARMONIC_RANGE_DB
+from coilshift.logger.tracking.settings import (HUM_PEAK_RATIO, HUM_STRONGER, LOCAL_CELLS, ROUNDING_FLOOR,
+                                                SUBHARMONIC_RANGE_DB)
 
 
 @dataclass
@@ -36,6 +38,8 @@ class Coarse:
     k : (F,) int, bin of the fundamental's peak
     fc : (F,) coarse frequency of the fundamental (bins)
     have : (F,) bool, a tone passed both detection tests
+    outside : (F,) bool, the strongest line lies above the searched range (within a few bins of
+        fs/2), above the threshold
     """
 
     spec: np.ndarray
@@ -46,6 +50,7 @@ class Coarse:
     k: np.ndarray
     fc: np.ndarray
     have: np.ndarray
+    outside: np.ndarray
 
 
 def coarse_stage(plan: Plan, frames) -> Coarse:
@@ -76,9 +81,10 @@ def coarse_stage(plan: Plan, frames) -> Coarse:
     else:
         kp = _nearest_peak(plan, searchable, detect)
     p_peak = searchable[rows, kp].astype(float)
+    detect = np.maximum(detect, _rounding_floor(plan, power, p_peak))
     have = p_peak > detect
     fp = kp + grandke_offset(plan, power, kp)
-    f_guess = _fundamental_guess(plan, searchable, fp, p_peak, detect)
+    f_guess = fundamental_guess(plan, spec, searchable, power, fp, p_peak, detect)
 
     # settle on the local maximum nearest the guess, then Grandke's Hann interpolation
     b0 = clamp(np.rint(f_guess).astype(int), plan.kmin + 1, plan.kmax - 1)
@@ -89,7 +95,31 @@ def coarse_stage(plan: Plan, frames) -> Coarse:
     local = clamp(k[:, None] + plan.local_offsets[None, :], 2, plan.nbins - 1)
     local_sorted = np.sort(power[rows[:, None], local], axis=1)
     have &= (p_k > detect) & (p_k > plan.local_ratio * local_sorted[:, LOCAL_CELLS // 2 - 1])
-    return Coarse(spec, power, noise_bins, noise_sorted, detect, k, fc, have)
+    # a peak on the edge of the searched range whose spectrum still rises beyond it is the skirt
+    # of a line outside (near DC or fs/2), not a tone
+    have &= ~(((k <= plan.s0) & (power[rows, k - 1] > power[rows, k]))
+              | ((k >= plan.s1) & (power[rows, k + 1] > power[rows, k])))
+    top_edge = power[:, plan.kmax + 1:].max(axis=1).astype(float)
+    outside = (top_edge > detect) & (top_edge > np.where(have, p_k, 0.0))
+    return Coarse(spec, power, noise_bins, noise_sorted, detect, k, fc, have, outside)
+
+
+def _rounding_floor(plan: Plan, power, p_peak):
+    """Least power (F,) a Hann bin must hold to be more than single-precision rounding.
+
+    The coarse FFT runs in float32: rounding leaves a structured floor whose peaks reach about
+    800 eps^2 sum(xw^2) (eps = 2^-23; measured for constants, a tone at fs/2 and tones with offsets,
+    N = 3000..16384), eps^2 sum(xw^2) being the rounding power of the windowed samples. A frame
+    holding only DC, or only a tone at fs/2, shows nothing but this floor in the searched bins;
+    ROUNDING_FLOOR times it keeps such frames NO_TONE. ``sum(xw^2)`` is taken (Parseval) from
+    the bins outside the searched range, where DC and fs/2 lie, plus four times the strongest
+    searched line (a Hann main lobe holds 1.5 times its peak bin's power): within a factor of
+    two, which the margin of ROUNDING_FLOOR over 800 covers.
+    """
+    edges = (power[:, :plan.kmin].sum(axis=1, dtype=np.float64)
+             + power[:, plan.kmax + 1:].sum(axis=1, dtype=np.float64))
+    total = 2.0 * (edges + 4.0 * p_peak) / plan.n
+    return ROUNDING_FLOOR * float(np.finfo(np.float32).eps) ** 2 * total
 
 
 def _without_hum(plan: Plan, power, detect):
@@ -152,32 +182,3 @@ def _nearest_peak(plan: Plan, searchable, detect):
     best = np.argmin(dist, axis=1)
     fallback = np.argmax(p, axis=1)
     return np.where(np.isfinite(dist[np.arange(p.shape[0]), best]), best, fallback)
-
-
-def _fundamental_guess(plan: Plan, searchable, fp, p_peak, detect):
-    """The fundamental (bins) the strongest line ``fp`` belongs to.
-
-    Every ``h fp / m`` is checked for a real peak (vectorised over frames and hypotheses). A
-    divisor m is accepted when its h = 1 peak shows and at least half of h = 1..m do; the lowest
-    consistent fundamental wins (or, with ``near_hz``, the one nearest it).
-    """
-    rows = np.arange(fp.shape[0])
-    thr_sub = np.maximum(detect, p_peak * 10 ** (-SUBHARMONIC_RANGE_DB / 10))
-    pos = np.rint(fp[:, None] * plan.sub_ratio[None, :]).astype(int)  # (F, L)
-    pos = clamp(pos, 1, plan.nbins - 2)
-    best = np.maximum(np.maximum(searchable[rows[:, None], pos - 1], searchable[rows[:, None], pos]),
-                      searchable[rows[:, None], pos + 1])
-    present = best > thr_sub[:, None]
-    # per divisor m (columns grouped by m): the h = 1 peak, and how many of h = 1..m show
-    counts = np.add.reduceat(present, plan.sub_start, axis=1, dtype=np.int64)
-    f0_all = fp[:, None] / plan.divisors[None, :]  # (F, M), divisor 1 first
-    m_valid = np.ones(f0_all.shape, dtype=bool)
-    m_valid[:, 1:] = (present[:, plan.sub_start] & (counts >= plan.sub_need[None, :])
-                      & (f0_all[:, 1:] >= max(plan.lo_bin - 0.5, plan.kmin)))
-    if plan.near_bin is None:
-        # lowest consistent fundamental = largest valid divisor
-        choice = (m_valid.shape[1] - 1) - np.argmax(m_valid[:, ::-1], axis=1)
-    else:
-        dist = np.where(m_valid, np.abs(f0_all - plan.near_bin), np.inf)
-        choice = np.argmin(dist, axis=1)
-    return f0_all[rows, choice]

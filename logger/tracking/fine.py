@@ -31,11 +31,15 @@ class Fine:
     freq_bins : (F,) the fundamental's frequency (bins)
     ah : (F, H) complex amplitudes of the fundamental (column 0, from the fine stage) and harmonics
     mean : (F,) frame means (None when no rectangular stage ran)
+    misfit : (F,) what the one-tone model leaves of the fundamental's DTFT samples, relative to
+        the tone's part of them (None without a rectangular stage; see
+        :mod:`~coilshift.logger.tracking.edges`)
     """
 
     freq_bins: np.ndarray
     ah: np.ndarray
     mean: np.ndarray | None
+    misfit: np.ndarray | None = None
 
     @property
     def amp(self):
@@ -43,7 +47,7 @@ class Fine:
         return 2 * np.abs(self.ah[:, 0])
 
 
-def _cleaned_samples(plan: Plan, step: SubBinStep, xpad, g, lines, mean=None):
+def cleaned_samples(plan: Plan, step: SubBinStep, xpad, g, lines, mean=None):
     """DTFT samples at ``g`` of the frames minus their mean and minus the other ``lines``.
 
     Returns (samples, wg_conj, mean); ``mean`` is computed from the frame sums when not given.
@@ -69,12 +73,13 @@ def fine_stage(plan: Plan, step: SubBinStep | None, xpad, fc, amp_h, hvalid, lin
     if step is None:
         return Fine(fc, ah, None)
     g = step.points(plan, fc)
-    s, wg_conj, mean = _cleaned_samples(plan, step, xpad, g, lines)
+    s, wg_conj, mean = cleaned_samples(plan, step, xpad, g, lines)
     f_fine = fc.copy()
     target = np.zeros(fc.shape[0], dtype=np.int64)
-    for _ in range(FINE_PASSES):
+    for _ in range(FINE_PASSES - 1):
         f_fine, ah[:, 0] = step.step(plan, s, g, wg_conj, f_fine, ah, target)
-    return Fine(f_fine, ah, mean)
+    f_fine, ah[:, 0], misfit = step.step(plan, s, g, wg_conj, f_fine, ah, target, misfit=True)
+    return Fine(f_fine, ah, mean, misfit)
 
 
 def fine_harmonic(plan: Plan, step: SubBinStep, xpad, fine: Fine, lines, f0, hvalid):
@@ -92,7 +97,7 @@ def fine_harmonic(plan: Plan, step: SubBinStep, xpad, fine: Fine, lines, f0, hva
     best = 1 + np.argmax(info, axis=1)
     hstar = plan.harm[best]
     g = step.points(plan, hstar * f0)
-    s, wg_conj, _ = _cleaned_samples(plan, step, xpad, g, lines, mean=fine.mean)
+    s, wg_conj, _ = cleaned_samples(plan, step, xpad, g, lines, mean=fine.mean)
     ah = ah.copy()
     f_est = f0.copy()
     for _ in range(FINE_PASSES):

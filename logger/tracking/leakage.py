@@ -19,14 +19,15 @@ from coilshift.logger.tracking.plan import Plan
 from coilshift.logger.tracking.settings import OTHER_LINES, OTHER_LINES_RANGE_DB
 
 
-def other_lines(plan: Plan, coarse: Coarse, hvalid):
+def other_lines(plan: Plan, coarse: Coarse, hvalid, pos=None, aliased=None):
     """Strong lines that are not the tone's cancelled harmonics: (frequencies, amplitudes).
 
     Mains hum or a second oscillator leaks into a rectangular-window DTFT as 1/distance; the
     strongest OTHER_LINES such lines (local maxima of the Hann spectrum within
     OTHER_LINES_RANGE_DB of the tone) are located by Grandke's interpolation and their complex
-    amplitudes read through the Hann kernel. Returns (F, L) arrays (amplitude 0 = no line),
-    or None when no frame has such a line.
+    amplitudes read through the Hann kernel. In ``aliased`` frames, lines at the folded
+    positions ``pos`` (F, H) of the cancelled harmonics are left out too. Returns (F, L) arrays
+    (amplitude 0 = no line), or None when no frame has such a line.
     """
     power, spec, detect, k, fc = coarse.power, coarse.spec, coarse.detect, coarse.k, coarse.fc
     nf = power.shape[0]
@@ -45,6 +46,8 @@ def other_lines(plan: Plan, coarse: Coarse, hvalid):
     n_h = hvalid.shape[1]
     cancelled = (h >= 1) & (h <= n_h) & (np.abs(c - h * fc[r]) <= 2.0)
     cancelled &= hvalid[r, clamp(h - 1, 0, n_h - 1)] | (h == 1)
+    if aliased is not None and aliased.any():
+        cancelled |= _near_folded(plan, hvalid, pos, aliased)[r, c]
     r, c = r[~cancelled], c[~cancelled]
     if r.size == 0:
         return None
@@ -63,6 +66,16 @@ def other_lines(plan: Plan, coarse: Coarse, hvalid):
     f_line = line_bin + grandke_hann(mags[:, :, 1], mags[:, :, 0], mags[:, :, 2])
     amp = np.where(line_on, spec[rows[:, None], line_bin].astype(complex) / hann_kernel(f_line - line_bin, plan.n), 0.0)
     return f_line, amp
+
+
+def _near_folded(plan: Plan, hvalid, pos, aliased):
+    """(F, nbins) bool: bins within two of a cancelled harmonic's folded line, in aliased frames."""
+    mark = np.zeros((hvalid.shape[0], plan.nbins), dtype=bool)
+    r, h = np.nonzero(hvalid & aliased[:, None])
+    centre = np.rint(pos[r, h]).astype(int)
+    for d in range(-2, 3):
+        mark[r, clamp(centre + d, 0, plan.nbins - 1)] = True
+    return mark
 
 
 def lines_leakage(plan: Plan, lines, g, wg_conj):

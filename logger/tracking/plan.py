@@ -14,7 +14,8 @@ import numpy as np
 from coilshift.logger.tracking.kernels import clamp, os_cfar_factor
 from coilshift.logger.tracking.settings import (
     DTFT_BLOCK, FALSE_ALARM_PER_FRAME, HUM_HARMONICS, LEAKAGE_HARMONICS, LOCAL_CELLS, LOCAL_GUARD,
-    MAINS_HZ, MAX_HARMONIC_SEARCH, MIN_CYCLES, NOISE_BINS, TOP_GUARD_BINS, TrackerSettings)
+    MAINS_HZ, MAX_HARMONIC_SEARCH, MIN_CYCLES, NOISE_BINS, SELECT_FOLD_HARMONICS, TOP_GUARD_BINS,
+    TrackerSettings)
 
 
 class Plan:
@@ -74,16 +75,36 @@ class Plan:
         self.local_ratio = os_cfar_factor(LOCAL_CELLS, LOCAL_CELLS // 2, FALSE_ALARM_PER_FRAME / m_search)
 
     def _subharmonic_hypotheses(self) -> None:
-        """Positions h/m of the strongest line, h = 1..m, m = 2..MAX_HARMONIC_SEARCH."""
-        ratios, hs = [], []
+        """Fundamentals the strongest line ``fp`` may belong to: ``f = (c N + s fp) / m``.
+
+        ``m`` = 1..MAX_HARMONIC_SEARCH is the harmonic number ``fp`` would have; ``c = 0`` (``fp``
+        is harmonic m as it is) or ``c = 1..m/2`` with ``s = +-1`` (harmonic m of ``f`` lies
+        above fs/2 and folds onto ``fp``). Column 0 is ``fp`` itself. Each hypothesis is
+        supported by its harmonics h = 1..m-1 (flattened: ``sup_hyp``, ``sup_h``).
+        """
+        ms, cs, ss = [1], [0], [1]
         for m in range(2, MAX_HARMONIC_SEARCH + 1):
-            for h in range(1, m + 1):
-                ratios.append(h / m)
-                hs.append(h)
-        self.sub_ratio = np.array(ratios)
-        self.sub_start = np.flatnonzero(np.array(hs) == 1)  # first column of each divisor's group
-        self.sub_need = np.array([math.ceil(m / 2) for m in range(2, MAX_HARMONIC_SEARCH + 1)])
-        self.divisors = np.arange(1, MAX_HARMONIC_SEARCH + 1, dtype=float)
+            for c in range(0, m // 2 + 1):
+                for sign in ((1,) if c == 0 else (1, -1)):
+                    ms.append(m)
+                    cs.append(c)
+                    ss.append(sign)
+        self.hyp_m = np.array(ms, dtype=float)
+        self.hyp_c = np.array(cs, dtype=float)
+        self.hyp_s = np.array(ss, dtype=float)
+        self.hyp_need = np.array([math.ceil(m / 2) for m in ms])
+        # preference among accepted hypotheses: the highest harmonic number (the lowest
+        # fundamental that explains fp), then fp itself below fs/2, then the fewest folds
+        self.hyp_rank = self.hyp_m * 100 - self.hyp_c * 2 - (self.hyp_s < 0)
+        hyp, hh = [], []
+        for i, m in enumerate(ms):
+            for h in range(1, m):
+                hyp.append(i)
+                hh.append(h)
+        self.sup_hyp = np.array(hyp)
+        self.sup_h = np.array(hh, dtype=float)
+        self.sup_first = np.flatnonzero(self.sup_h == 1)  # the h = 1 entry of hypotheses 1..
+        self.fold_k = np.arange(1, SELECT_FOLD_HARMONICS + 1, dtype=float)
 
     def _hum_masks(self) -> None:
         """Bins around k * mains, excluded when the mains line itself shows (no band given).

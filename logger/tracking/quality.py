@@ -14,12 +14,13 @@ import numpy as np
 
 from coilshift.logger.runfolder import flags as fl
 from coilshift.logger.tracking.coarse import Coarse
+from coilshift.logger.tracking.folding import fold
 from coilshift.logger.tracking.kernels import clamp
 from coilshift.logger.tracking.plan import Plan
-from coilshift.logger.tracking.settings import NOISE_GUARD_BINS
+from coilshift.logger.tracking.settings import ALIAS_BIAS_LIMIT_BINS, NOISE_GUARD_BINS
 
 
-def noise_variance(plan: Plan, coarse: Coarse, freq_bins, hvalid):
+def noise_variance(plan: Plan, coarse: Coarse, freq_bins, hvalid, aliased=None):
     """White-equivalent noise variance per sample, (F,), with the tone's lines left out.
 
     The median of the remaining bins sits at rank ``(nd - above + below) / 2`` of the full sorted
@@ -30,6 +31,8 @@ def noise_variance(plan: Plan, coarse: Coarse, freq_bins, hvalid):
     noise_bins, noise_sorted, have = coarse.noise_bins, coarse.noise_sorted, coarse.have
     nf, nd = noise_sorted.shape
     centre = freq_bins[:, None] * plan.harm[None, :hvalid.shape[1]]
+    if aliased is not None and aliased.any():
+        centre = fold(centre, plan.n)[0]  # where the harmonics above fs/2 show
     step_b = plan.noise_step
     j_first = np.ceil((centre - NOISE_GUARD_BINS - plan.kmin) / step_b).astype(int)
     left_out = []
@@ -49,12 +52,21 @@ def noise_variance(plan: Plan, coarse: Coarse, freq_bins, hvalid):
     return noise_bin / plan.win_power
 
 
-def frame_flags(plan: Plan, coarse: Coarse, freq_bins, snr_db, clipped):
-    """Flags per frame: CLIPPED, OUT_OF_BAND (with a band), NO_TONE and LOW_SNR."""
+def frame_flags(plan: Plan, coarse: Coarse, freq_bins, snr_db, clipped, aliased=None, alias_bias=None,
+                maybe_aliased=None):
+    """Flags per frame: CLIPPED, OUT_OF_BAND (with a band), NO_TONE, LOW_SNR, ALIASED, ALIAS_CLOSE.
+
+    ALIAS_CLOSE: the bound ``alias_bias`` (bins) on what folded harmonics too close to separate
+    can do exceeds ALIAS_BIAS_LIMIT_BINS, in ``maybe_aliased`` frames (aliased, or where folded
+    lines could not be told from the harmonics beside them).
+    """
     s = plan.settings
     power, detect, have = coarse.power, coarse.detect, coarse.have
     fl_arr = np.zeros(have.shape[0], dtype=np.int64)
     fl_arr[clipped] |= fl.CLIPPED
+    if alias_bias is not None:
+        fl_arr[have & aliased] |= fl.ALIASED
+        fl_arr[have & maybe_aliased & (alias_bias > ALIAS_BIAS_LIMIT_BINS)] |= fl.ALIAS_CLOSE
     if s.band_hz is not None:
         freq_hz = freq_bins * plan.df
         # the dominant line over the whole spectrum: outside the band and not one of our harmonics?
@@ -68,7 +80,11 @@ def frame_flags(plan: Plan, coarse: Coarse, freq_bins, snr_db, clipped):
         oob = outside & (pg > detect) & ~harmonic
         oob |= have & ((freq_hz < s.band_hz[0]) | (freq_hz > s.band_hz[1]))
         fl_arr[oob] |= fl.OUT_OF_BAND
+    else:
+        # the strongest line sits within a few bins of fs/2, where nothing is searched
+        fl_arr[coarse.outside] |= fl.OUT_OF_BAND
     fl_arr[~have] |= fl.NO_TONE
     low = have & ~(snr_db >= s.min_snr_db)
     fl_arr[low] |= fl.LOW_SNR
     return fl_arr
+

@@ -22,9 +22,53 @@ FALSE_ALARM_PER_FRAME = 1e-3
 SUBHARMONIC_RANGE_DB = 30.0
 #: highest harmonic number that may be the strongest line and still be traced to its fundamental
 MAX_HARMONIC_SEARCH = 10
+#: a line supporting a candidate fundamental is "explained" by the strongest line when it sits
+#: where harmonic k = 2..SELECT_FOLD_HARMONICS of that line folds; within SELECT_TIE_BINS the two
+#: explanations tie, and the folded one is taken when the line is no stronger than
+#: (FOLD_AMPLITUDE_GAIN / k)^2 times the strongest line (a waveform with jumps has harmonics
+#: falling as 1/k: a 10 % pulse's reach 3.2/k of its fundamental, a square's 1/k)
+SELECT_FOLD_HARMONICS = 128
+SELECT_TIE_BINS = 0.1
+FOLD_AMPLITUDE_GAIN = 4.0
+#: error of the strongest line's Hann location in a spectrum dense with folded lines (bins); the
+#: tie window of harmonic k widens by k times this
+FP_UNCERTAINTY_BINS = 0.01
+#: a fundamental whose folded harmonic would be the strongest line must be within this range of it
+FOLDED_RANGE_DB = 10.0
+#: a supporting line must lie within this many bins (plus four of its standard deviations) of
+#: where the hypothesis puts it: chance neighbours in a dense spectrum are a bin or so off
+SELECT_LOCATION_BINS = 0.1
+#: standard deviation of Grandke's Hann location times sqrt(per-bin SNR) (bins): the single-tone
+#: Cramer-Rao bound, 1/(pi sqrt(2/3 SNR_bin)) for the Hann window, times 1.9 (measured RMS ratio)
+GRANDKE_LOCATION_SIGMA = 0.75
 #: harmonics whose leakage is cancelled in the fine stage (a low pulse wave has a hundred or more
 #: below fs/2, each leaking as 1/distance into the rectangular window)
 LEAKAGE_HARMONICS = 256
+#: aliasing (a signal sampled without an anti-alias filter): this many harmonics above fs/2,
+#: from the first, are looked for at their folded positions, and at least FOLD_PROBE_MIN must
+#: show as lines for a frame to count as aliased (a square wave lacks every other harmonic; one
+#: stray line such as hum is not enough)
+FOLD_PROBE_HARMONICS = 8
+FOLD_PROBE_MIN = 2
+#: a folded harmonic counts only when its line lies within this many bins of where folding puts it
+FOLD_LOCATION_TOL = 0.5
+#: a folded line closer than this many bins to a harmonic below fs/2 cannot be told from it (the
+#: two-line fit through the Hann kernel loses its conditioning)
+FOLD_RESOLVE_BINS = 0.7
+#: lines closer than this many bins share the Hann main lobe (+-2 bins): neither reading is clean
+CLOSE_BINS = 3.0
+#: folded harmonics too close to separate: those up to this order are weighed
+#: (:mod:`~coilshift.logger.tracking.aliasbias`), within this many bins of the tone
+ALIAS_BIAS_HARMONICS = 4096
+ALIAS_BIAS_REACH_BINS = 8.0
+#: a frame whose bound on the error from such lines exceeds this (bins; 1.8 mHz with the default
+#: frame) and its own noise-limited standard deviation is flagged alias_close
+ALIAS_BIAS_LIMIT_BINS = 1.5e-4
+#: a frame is flagged edge when the one-tone model leaves more than this of the tone's DTFT
+#: samples unexplained, plus EDGE_NOISE_SIGMAS noise scales
+#: (:mod:`~coilshift.logger.tracking.edges`): a tone missing from 3 % of the frame leaves 0.05
+EDGE_LIMIT = 0.05
+EDGE_NOISE_SIGMAS = 5.0
 #: mains frequencies and the number of their harmonics treated as hum
 MAINS_HZ = (50.0, 60.0)
 HUM_HARMONICS = 10
@@ -45,6 +89,9 @@ GRANDKE_VARIANCE_FACTOR = 3.5
 #: local detection test: this many cells (half each side), starting this many bins from the peak
 LOCAL_CELLS = 24
 LOCAL_GUARD = 3
+#: a line must exceed this many times the single-precision rounding power of the frame
+#: (eps^2 sum(xw^2)); rounding peaks reach about 800 times it
+ROUNDING_FLOOR = 1e4
 #: bins either side of each harmonic left out of the noise estimate
 NOISE_GUARD_BINS = 3
 #: the noise median uses about this many bins (every few bins: cheaper, and Hann neighbours are

@@ -51,11 +51,13 @@ class SubBinStep:
         """New frequency (bins) from the cleaned samples ``p`` (F, P) at ``g``."""
         raise NotImplementedError
 
-    def step(self, plan: Plan, s, g, wg_conj, f0_est, ah, target):
+    def step(self, plan: Plan, s, g, wg_conj, f0_est, ah, target, misfit: bool = False):
         """Remove the leakage of everything but the target, then estimate it.
 
         Returns the target's frequency (bins) and its least-squares complex amplitude from all
-        P samples (their kernels have nearly opposite phase).
+        P samples (their kernels have nearly opposite phase). With ``misfit``, also
+        ``|p - a W(f - g)| / |a W(f - g)|``, what the fitted tone leaves of the cleaned samples
+        (:mod:`~coilshift.logger.tracking.edges`).
         """
         p = without_model(plan, s, g, wg_conj, f0_est, ah, target)
         f_new = self.solve(plan, p, g)
@@ -67,7 +69,13 @@ class SubBinStep:
             den = den + np.abs(w[:, j]) ** 2
         with np.errstate(divide="ignore", invalid="ignore"):
             a_new = num / den
-        return f_new, np.where(np.isfinite(a_new), a_new, 0.0)
+        a_new = np.where(np.isfinite(a_new), a_new, 0.0)
+        if not misfit:
+            return f_new, a_new
+        # a is the least-squares amplitude, so the residual is what the fit leaves of |p|^2
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rel2 = np.sum(p.real ** 2 + p.imag ** 2, axis=1) / ((a_new.real ** 2 + a_new.imag ** 2) * den) - 1.0
+        return f_new, a_new, np.sqrt(np.maximum(rel2, 0.0))
 
 
 class AboutaniosMulgrew(SubBinStep):

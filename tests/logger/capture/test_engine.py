@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import json
 import math
+import threading
 import time
 
 import numpy as np
@@ -85,7 +86,10 @@ def test_clean_run_keeps_the_sample_timeline_and_the_step(scripted_source, tmp_p
     assert not log.interrupted and log.meta["status"] == "complete"
     assert summary["overflows"] == summary["gaps"] == summary["device_errors"] == 0
     assert summary["samples"] == len(blocks) * BLOCK
-    assert (log.table["flags"].to_numpy() == 0).all()
+    fl = log.table["flags"].to_numpy()
+    assert (fl[before | after] == 0).all()
+    # the frames that hold the 10 Hz step (about a bin) carry the edge flag and nothing else
+    assert np.isin(fl[~(before | after)], [0, F.EDGE]).all() and (fl[~(before | after)] == F.EDGE).any()
 
 
 def test_input_overflow_flags_the_frames_over_that_block(scripted_source, tmp_path):
@@ -248,3 +252,101 @@ def test_marker_labels(label, expect):
 def test_bad_marker_labels_are_refused(label):
     with pytest.raises(InputError):
         parse_marker_label(label)
+
+
+# --------------------------------------------------------------------------- round two
+
+class _HungDriverSource:
+    """A device that delivers some audio, then nothing; its close() never returns (a hung driver)."""
+
+    def __init__(self, blocks):
+        self.sample_rate_hz = FS
+        self.blocks = blocks
+        self.release = threading.Event()  # set at the end of the test so the thread can go
+
+    def open(self, deliver, fail):
+        for b in self.blocks:
+            deliver(np.asarray(b, dtype=np.float32), 0.0, False)
+
+    def close(self):
+        self.release.wait()
+
+    def describe(self):
+        return {"kind": "hung driver"}
+
+
+def test_a_stream_that_will_not_close_is_abandoned_and_the_run_ends(tmp_path):
+    src = _HungDriverSource(tone_blocks(1000.0, 0.5))
+    run_dir = prepare_run_dir(tmp_path / "run")
+    eng = CaptureEngine(src, run_dir, SETTINGS, baseline_s=0.2, stall_timeout_s=0.3, close_timeout_s=0.5)
+    try:
+        eng.start()
+        assert eng.wait(15), "the stalled input was not noticed"
+        t0 = time.monotonic()
+        summary = eng.stop()
+        waited = time.monotonic() - t0
+    finally:
+        src.release.set()
+    assert waited < 0.5 + 1.0  # the close timeout, plus the worker's last rows
+    assert summary["status"] == "device_error" and "abandoned" in summary["stream_close"]
+    meta = json.loads((run_dir / "run.json").read_text())
+    assert meta["status"] == "device_error" and "abandoned" in meta["totals"]["stream_close"]
+    assert len(read_log(run_dir).table) > 0
+
+
+def test_soundcard_close_aborts_then_abandons_a_hung_stream(monkeypatch):
+    import atexit
+
+    from coilshift.logger.sources import soundcard
+
+    class Stuck:
+        calls = []
+
+        def stop(self):
+            self.calls.append("stop")
+            threading.Event().wait()
+
+        def abort(self):
+            self.calls.append("abort")
+            threading.Event().wait()
+
+        def close(self):
+            self.calls.append("close")
+
+    unregistered = []
+    monkeypatch.setattr(atexit, "unregister", lambda fn: unregistered.append(fn))
+    monkeypatch.setattr(soundcard, "CLOSE_TIMEOUT_S", 0.2)
+    src = object.__new__(soundcard.SoundcardSource)
+    src._stream, src._closing, src.abandoned = Stuck(), False, False
+    t0 = time.monotonic()
+    src.close()
+    assert time.monotonic() - t0 < 1.0
+    assert Stuck.calls == ["stop", "abort"] and src.abandoned
+    assert unregistered, "PortAudio's exit handler would hang on the abandoned stream"
+
+
+@pytest.mark.parametrize("rezero_every_s", [None, 0.3], ids=["start-window", "re-zero-windows"])
+def test_rows_reach_the_disk_while_a_baseline_window_is_open(scripted_source, tmp_path, rezero_every_s):
+    # a window far longer than the run (or re-zeroed before it can close): before, every row of
+    # it waited in memory and a crash lost them all; now they are on disk within the append interval
+    blocks = tone_blocks(1000.0, 3.0)
+    holder, seen = {}, []
+    steps = []
+    log = tmp_path / "run" / "log.csv"
+    for i, b in enumerate(blocks):
+        n = i * BLOCK
+        if rezero_every_s and n and n % int(rezero_every_s * FS) == 0:
+            steps.append(("call", lambda: holder["eng"].rezero()))
+        if n == int(2.0 * FS):  # 2 s into the run: what is on disk now?
+            steps.append(("call", lambda: (time.sleep(0.6), seen.append(log.read_text().count("\n") - 1))))
+        steps.append(("block", b, False))
+    src = scripted_source(FS, steps, pace_s=0.002)
+    run_dir = prepare_run_dir(tmp_path / "run")
+    eng = holder["eng"] = CaptureEngine(src, run_dir, SETTINGS, baseline_s=60.0)
+    eng.start()
+    finish(eng, src)
+    frames_by_2s = int((2.0 * FS - N) // HOP) + 1
+    # the rows of 2 s of audio, less what the last append interval (0.25 s) and batch may hold
+    assert seen[0] >= frames_by_2s - int(0.35 * FS / HOP)
+    rows = read_log(run_dir)
+    assert len(rows.table) == (len(blocks) * BLOCK - N) // HOP + 1
