@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from coilshift.cli.options import add_cap_option, add_freq_option, add_json_option
+from coilshift.cli.options import FRACTION, OHMS, TIMER_FREQ_HZ, add_cap_option, add_freq_option, add_json_option
 
 ORDER = 62
 
@@ -15,12 +15,12 @@ def register(subparsers) -> None:
                     "timing, or --freq-hz (and optionally --cap-nf, --duty) for suggested parts.")
     p.add_argument("--one-resistor", action="store_true",
                    help="one resistor from the output to C (CMOS 555, rail-to-rail output), 50 %% duty")
-    p.add_argument("--r1-ohm", type=float, metavar="R", help="two-resistor circuit: supply to discharge")
-    p.add_argument("--r2-ohm", type=float, metavar="R", help="two-resistor circuit: discharge to C")
-    p.add_argument("--r-ohm", type=float, metavar="R", help="one-resistor circuit: output to C")
+    p.add_argument("--r1-ohm", type=OHMS, metavar="R", help="two-resistor circuit: supply to discharge")
+    p.add_argument("--r2-ohm", type=OHMS, metavar="R", help="two-resistor circuit: discharge to C")
+    p.add_argument("--r-ohm", type=OHMS, metavar="R", help="one-resistor circuit: output to C")
     add_cap_option(p, "timing capacitor, nF")
-    add_freq_option(p, "wanted frequency: suggest parts")
-    p.add_argument("--duty", type=float, default=0.6, help="wanted duty cycle, two-resistor circuit (default 0.6)")
+    add_freq_option(p, "wanted frequency: suggest parts", type=TIMER_FREQ_HZ)
+    p.add_argument("--duty", type=FRACTION, default=0.6, help="wanted duty cycle, two-resistor circuit (default 0.6)")
     p.add_argument("--series", default="E24", choices=("E6", "E12", "E24", "none"),
                    help="round resistors to this IEC 60063 series (default E24)")
     add_json_option(p, "print one JSON object")

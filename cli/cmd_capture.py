@@ -9,7 +9,7 @@ import textwrap
 from pathlib import Path
 
 from coilshift.cli.cautions import WIRING_CAUTION
-from coilshift.cli.options import (add_force_option, add_json_option, add_live_input_options, add_run_folder_option,
+from coilshift.cli.options import (SECONDS, add_force_option, add_json_option, add_live_input_options, add_run_folder_option,
                                    add_synthetic_option, add_tracking_options)
 
 ORDER = 20
@@ -47,7 +47,7 @@ def register(subparsers) -> None:
     src = add_live_input_options(p, device_help="input device: index or part of its name (see 'coilshift "
                                                 "devices'); default: the system default input",
                                  channel_help="input channel to track, from 0 (default 0)")
-    src.add_argument("--seconds", type=float, metavar="S", help="stop after S seconds (default: until you quit)")
+    src.add_argument("--seconds", type=SECONDS, metavar="S", help="stop after S seconds (default: until you quit)")
     src.add_argument("--save-audio", action="store_true",
                      help="also save the raw input as audio.wav (32-bit float WAV) to re-track later")
     add_synthetic_option(src)  # paced test tone: F[,F2@T2...]
@@ -85,42 +85,46 @@ def run(args) -> int:
     interactive = not args.no_view and sys.stdout.isatty() and sys.stdin.isatty() and _has_termios()
     engine, run_dir = _start(args, source, settings, corr, interactive)
     how, summary = _watch(args, engine, source, run_dir, interactive)
+    from coilshift.cli.common import note_done
+
+    note_done(f"the run in {run_dir} is {summary['status']}")
+    if how == "hangup":  # the terminal is gone: say what can still be said, then end quietly
+        try:
+            return _finish(args, engine, summary, how, run_dir)
+        except (OSError, ValueError):
+            return 0
     return _finish(args, engine, summary, how, run_dir)
 
 
+#: files of an earlier capture that a forced one replaces besides the log (its saved audio)
+AUDIO_FILES = ("audio.wav", "audio-[0-9][0-9][0-9].wav")
+
+
 def _start(args, source, settings, corr, interactive: bool):
-    """Create the run folder and start the engine; if anything fails before the start, a folder
-    that did not exist before is removed again. Returns ``(engine, run_dir)``."""
+    """Start the engine on a claimed run folder. Nothing in the folder changes until the input
+    is open and the tracker accepts it: a refused start (a rate the tracker cannot use, Ctrl-C
+    at the first-run caution) leaves an old run there whole. Returns ``(engine, run_dir)``."""
     from coilshift.cli.cautions import show_caution_once
     from coilshift.logger.capture.engine import CaptureEngine
     from coilshift.logger.errors import InputError
-    from coilshift.logger.runfolder.folders import prepare_run_dir
+    from coilshift.logger.runfolder.folders import RunClaim
 
-    existed = Path(args.out).exists()
-    run_dir = prepare_run_dir(args.out, args.force)
+    claim = RunClaim(args.out, args.force, also=AUDIO_FILES)
+    claim.check()
+    claim.hold()  # another command writing there is refused now, before the device is opened
+    run_dir = claim.run_dir
     engine = CaptureEngine(source, run_dir, settings, corr, baseline_s=args.baseline_s, save_audio=args.save_audio,
-                           max_seconds=args.seconds,
+                           max_seconds=args.seconds, claim=claim,
                            meta={"command": "capture", "options": {k: v for k, v in vars(args).items()
                                                                   if k not in ("func", "command")}})
-    try:
-        if show_caution_once() and interactive:
-            # the live panel clears the screen: let the caution be read first
-            try:
-                input("Press Enter to start the capture (Ctrl-C to cancel) ")
-            except (EOFError, KeyboardInterrupt):
-                print()
-                raise InputError(f"{run_dir}: capture cancelled before it started; nothing written") from None
-        if args.force:  # audio of an earlier run in this folder
-            for old in list(run_dir.glob("audio.wav")) + list(run_dir.glob("audio-[0-9][0-9][0-9].wav")):
-                old.unlink()
-        engine.start()
-    except BaseException:
-        if not existed:
-            try:
-                run_dir.rmdir()  # nothing was captured: leave no empty folder behind
-            except OSError:
-                pass
-        raise
+    if show_caution_once() and interactive:
+        # the live panel clears the screen: let the caution be read first
+        try:
+            input("Press Enter to start the capture (Ctrl-C to cancel) ")
+        except (EOFError, KeyboardInterrupt):
+            print()
+            raise InputError(f"{run_dir}: capture cancelled before it started; nothing written") from None
+    engine.start()
     return engine, run_dir
 
 
@@ -128,18 +132,12 @@ def _watch(args, engine, source, run_dir, interactive: bool):
     """Show the running capture (live panel, a plain line a second, or nothing) until it ends,
     then stop the engine. Returns how it ended (``"ended"``, ``"quit"``, ``"interrupt"``) and the
     engine's summary."""
-    import signal
-
     from coilshift.logger.capture.view import LivePlot, PlainLines, TerminalPanel
 
     desc = source.describe()
     title = (f"coilshift capture  {desc.get('device_name', 'synthetic tone')}  "
              f"{engine.sample_rate_hz:g} Hz  ch {args.channel}  -> {run_dir}")
 
-    def _term(signum, frame):  # SIGTERM ends the run like Ctrl-C
-        raise KeyboardInterrupt
-
-    old_term = signal.signal(signal.SIGTERM, _term)
     plot = None
     how = "ended"
     said = io.StringIO()  # a message about the plot window: shown in the panel, or on stderr
@@ -156,16 +154,39 @@ def _watch(args, engine, source, run_dir, interactive: bool):
             stream = sys.stderr if args.json else sys.stdout
             stream.write(title + "\n")
             PlainLines(engine, out=stream).run(plot)
-    except KeyboardInterrupt:
-        how = "interrupt"
+    except BaseException as exc:  # Ctrl-C; SIGTERM and SIGHUP too (cli.main makes them the same)
+        how = _how_interrupted(exc)
+        if how is None:
+            raise
     finally:
-        signal.signal(signal.SIGTERM, old_term)
         try:
             summary = engine.stop()
         finally:
             if plot is not None:
                 plot.close()
     return how, summary
+
+
+def _how_interrupted(exc: BaseException) -> str | None:
+    """``"interrupt"`` for Ctrl-C or SIGTERM, ``"hangup"`` for SIGHUP, None for anything else.
+
+    A closed terminal sends SIGHUP; restoring the live panel's terminal then fails too, so the
+    KeyboardInterrupt may arrive as the context of a terminal error.
+    """
+    import errno
+
+    seen = exc
+    while seen is not None:
+        if isinstance(seen, KeyboardInterrupt):
+            return "hangup" if getattr(seen, "name", "") == "SIGHUP" else "interrupt"
+        seen = seen.__context__
+    # the terminal went away without a SIGHUP (its reads and writes fail): end as for one
+    try:
+        from termios import error as tty_error
+    except ImportError:  # no POSIX terminal: only OSError can say so
+        tty_error = OSError
+    code = exc.errno if isinstance(exc, OSError) else exc.args[0] if isinstance(exc, tty_error) and exc.args else None
+    return "hangup" if code in (errno.EIO, errno.ENXIO) else None
 
 
 def _finish(args, engine, summary: dict, how: str, run_dir) -> int:
@@ -180,12 +201,13 @@ def _finish(args, engine, summary: dict, how: str, run_dir) -> int:
         snap = engine.snapshot()
         print(status_line(snap))
         print(f"{summary['status']}: {summary['rows']} rows, {summary['duration_s']:.1f} s in {run_dir} "
-              f"(ended by {'you' if how in ('quit', 'interrupt') else summary['ended_by']}); "
+              f"(ended by {'you' if how in ('quit', 'interrupt', 'hangup') else summary['ended_by']}); "
               f"faults: {summary['overflows']} overflows, {summary['gaps']} gaps "
               f"({summary['lost_samples']} samples lost), {summary['device_errors']} device errors")
     if summary["status"] == "device_error":
-        print(f"coilshift: error: input stopped: {summary['message']}; the log up to then is kept in {run_dir}",
-              file=sys.stderr)
+        hung = f"; {summary['stream_close']}" if summary.get("stream_close") else ""
+        print(f"coilshift: error: input stopped: {summary['message']}{hung}; the log up to then is kept in "
+              f"{run_dir}", file=sys.stderr)
         return 1
     if summary["status"] != "complete":
         print(f"coilshift: error: capture failed: {summary['message']}; the log up to then is kept in {run_dir}",

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from coilshift.cli.options import add_channel_option, add_frame_options, add_json_option, add_quiet_option
+from coilshift.cli.options import FREQ_HZ, add_channel_option, add_frame_options, add_json_option, add_quiet_option
 
 ORDER = 35
 
@@ -18,7 +18,7 @@ def register(subparsers) -> None:
                     "--clock-ppm to track and capture.",
     )
     p.add_argument("input", metavar="INPUT", help="recording of the reference tone (audio file or scope CSV)")
-    p.add_argument("--reference-hz", type=float, required=True, metavar="HZ",
+    p.add_argument("--reference-hz", type=FREQ_HZ, required=True, metavar="HZ",
                    help="the reference tone's true frequency")
     add_channel_option(p, "channel to use, numbered from 0")
     add_frame_options(p, 200.0, "analysis frame in ms (default 200: long frames suit a steady tone)",

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from coilshift.cli.options import add_coil_arguments, add_json_option
+from coilshift.cli.options import FREQ_HZ, add_coil_arguments, add_json_option
 
 ORDER = 60
 
@@ -15,7 +15,7 @@ def register(subparsers) -> None:
                     "(IEC 60028 copper), self-capacitance (Medhurst 1947) and the LC frequency with a "
                     "tuning capacitor.")
     add_coil_arguments(p)
-    p.add_argument("--for-freq-hz", type=float, metavar="F",
+    p.add_argument("--for-freq-hz", type=FREQ_HZ, metavar="F",
                    help="also give the tuning capacitor for this LC frequency")
     add_json_option(p, "print one JSON object")
     p.set_defaults(func=run)

@@ -36,16 +36,39 @@ def _free_dir():
     return base  # every name taken: new_output_dir refuses with a clear message
 
 
+def _build(out, force: bool, say, run_demo) -> dict:
+    """Run the demo in a folder built aside and swapped in whole (an interrupted demo leaves
+    ``out`` as it was). The demo runs inside the build folder, so the paths its files record
+    (a run's recording, a result's run folder) are relative to the demo folder and stay right
+    after the swap."""
+    import os
+    from pathlib import Path
+
+    from coilshift.logger.runfolder.outputs import building_output_dir
+
+    here = os.getcwd()
+    with building_output_dir(out, force) as build:
+        os.chdir(build)
+        try:
+            summary = run_demo(".", True, say)
+        finally:
+            os.chdir(here)
+    for key in ("report", "calibration_report"):
+        summary[key] = str(Path(out) / summary[key])
+    return summary
+
+
 def run(args) -> int:
     import sys
 
-    from coilshift.cli.common import print_json
+    from coilshift.cli.common import note_done, print_json
     from coilshift.sim.demo import CAUTION, run_demo, summary_table
 
     out = args.out if args.out is not None else _free_dir()
     quiet = args.json
     say = (lambda s: None) if quiet else (lambda s: print(s, file=sys.stderr, flush=True))
-    summary = run_demo(out, args.force, say)
+    summary = _build(out, args.force, say, run_demo)
+    note_done(f"the demo was written to {out}")
     if args.json:
         print_json(summary)
         return 0

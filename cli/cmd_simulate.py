@@ -23,14 +23,19 @@ def register(subparsers) -> None:
 
 
 def run(args) -> int:
-    from coilshift.cli.common import print_json
-    from coilshift.logger.runfolder.folders import new_output_dir
+    from pathlib import Path
+
+    from coilshift.cli.common import note_done, print_json
+    from coilshift.logger.runfolder.outputs import building_output_dir
     from coilshift.sim.render import simulate
     from coilshift.sim.script import load_script
 
     script = load_script(args.script)  # check the script before touching the output folder
-    out = new_output_dir(args.out, args.force)
-    summary = simulate(script, out)
+    with building_output_dir(args.out, args.force) as build:  # swapped in whole, or not at all
+        summary = simulate(script, build)
+    for key in ("recording", "markers", "truth"):  # where the files are now
+        summary[key] = str(Path(args.out) / Path(summary[key]).name)
+    note_done(f"the simulation was written to {args.out}")
     if args.json:
         print_json(summary)
         return 0

@@ -43,7 +43,7 @@ def warn(lines) -> None:
 
 
 def run(args) -> int:
-    from coilshift.cli.common import print_json
+    from coilshift.cli.common import note_done, print_json
     from coilshift.cli.tracking_args import check_tracking_options, tracking_from_args
     from coilshift.logger.pipeline.batch import track_source
     from coilshift.logger.progress import make_progress
@@ -57,6 +57,7 @@ def run(args) -> int:
     with make_progress("tracking", quiet=args.quiet) as bar:
         summary = track_source(source, settings, corrections, args.out, markers=args.markers,
                                baseline_s=args.baseline_s, force=args.force, progress=bar)
+    note_done(f"the run was written to {summary['run_dir']}")
     warn(w for w in summary["warnings"] if w not in early)
     if args.json:
         print_json(summary)

@@ -23,6 +23,8 @@ def synthetic_source(spec: str, rate: float | None, seconds: float | None):
     if any(t != t for t, _ in steps):
         raise InputError(f"--synthetic {spec}: every step after the first needs @T")
     fs = rate or 48000.0
+    if not all(0 <= t < 1e8 and 0 < f < fs / 2 for t, f in steps):
+        raise InputError(f"--synthetic {spec}: tones must lie between 0 and {fs / 2:g} Hz, times from 0 s")
     duration = (seconds + 5.0) if seconds else 1e7
     return PacedSource(ToneSource(steps, duration, fs, amplitude=0.5, snr_db=50.0, seed=1), block_frames=512)
 

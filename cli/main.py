@@ -53,16 +53,57 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _printable(text: str) -> str:
+    """One line of plain text: control characters (a NUL-filled cell, a newline in a file name)
+    shown as escapes, so an error message is always exactly one readable line."""
+    return "".join(c if c.isprintable() else repr(c)[1:-1] for c in text)
+
+
+def _drop_stdout() -> None:
+    """Point stdout at the null device, so the text still buffered for it is not written (and
+    fails again) when the interpreter exits."""
+    try:
+        fd = sys.__stdout__.fileno()
+        null = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(null, fd)
+        os.close(null)
+    except (OSError, ValueError, AttributeError):
+        pass
+
+
+def _error(text: str) -> None:
+    print(f"{PROG}: {_printable(text)}", file=sys.stderr)
+
+
 def main(argv: list[str] | None = None) -> int:
+    """Run one command; every failure is one line on stderr and a non-zero exit status.
+
+    SIGTERM and SIGHUP (a closed terminal) end a command the way Ctrl-C does: work in progress
+    is undone or closed cleanly, and the exit status is 128 + the signal's number.
+    """
+    from coilshift.cli.common import guarded_stdout, handle_ending_signals
+
     parser = build_parser()
-    args = parser.parse_args(argv)
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # a refused option (one line already printed), --help, --version
+        return exc.code if isinstance(exc.code, int) else 2
+    with handle_ending_signals(), guarded_stdout() as done:
+        return _run(args, done)
+
+
+def _run(args, done: list[str]) -> int:
+    from coilshift.cli.common import Interrupted, OutputLost
+
     debug = bool(os.environ.get("COILSHIFT_DEBUG"))
     try:
-        return int(args.func(args) or 0)
+        code = int(args.func(args) or 0)
+        sys.stdout.flush()  # a full disk or a closed pipe behind stdout shows up here, not at exit
+        return code
     except InputError as exc:
         from coilshift.cli.options import option_for
 
-        print(f"{PROG}: error: {exc.render(option_for)}", file=sys.stderr)
+        _error(f"error: {exc.render(option_for)}")
         return 2
     except BrokenPipeError:
         # the reader went away (e.g. `coilshift ... | head`): nothing to say, stop quietly
@@ -71,20 +112,27 @@ def main(argv: list[str] | None = None) -> int:
         except OSError:
             pass
         return 0
+    except Interrupted as exc:
+        _error(f"ended by {exc.name}")
+        return 128 + exc.signum
     except KeyboardInterrupt:
-        print(f"{PROG}: interrupted", file=sys.stderr)
+        _error("interrupted")
         return 130
+    except OutputLost as exc:
+        _drop_stdout()
+        kept = "; ".join(done) if done else "nothing else was affected"
+        _error(f"error: standard output: {exc.strerror}: the printed result was lost ({kept})")
+        return 1
     except OSError as exc:
         if debug:
             raise
         where = f"{exc.filename}: " if getattr(exc, "filename", None) else ""
-        print(f"{PROG}: error: {where}{exc.strerror or exc}", file=sys.stderr)
+        _error(f"error: {where}{exc.strerror or exc}")
         return 1
     except Exception as exc:  # a bug: still one line, with a way to get the traceback
         if debug:
             raise
-        print(f"{PROG}: internal error: {type(exc).__name__}: {exc} (set COILSHIFT_DEBUG=1 for details)",
-              file=sys.stderr)
+        _error(f"internal error: {type(exc).__name__}: {exc} (set COILSHIFT_DEBUG=1 for details)")
         return 3
 
 

@@ -3,15 +3,19 @@
 Scenario (invented for the demo): a workshop replaces its A-150 search coil (150 mm, 40 turns)
 by a new B-200 coil (200 mm, 32 turns). Both run in the same LC oscillator on the bench, straight
 into a 48 kHz line-in. Each coil is calibrated against the test-piece set (a 25 mm steel ball, a
-25 mm aluminium ball, a 20 mm brass ball, a 10 mm ferrite slug and a 30 mm nylon block) at five
-distances on the coil axis, every stretch bracketed by target-free baselines; then the new coil is
-left alone for three minutes from power-on to measure its stability.
+25 mm aluminium ball, a 20 mm brass ball, a 10 mm ferrite slug and a 30 mm nylon block) at six
+distances on the coil axis, out past the expected ranges so that every range is measured between
+two points, every stretch bracketed by target-free baselines, after a 40 s first baseline (the
+detection threshold rests on the Allan deviation at the dwell, and its uncertainty on how many
+dwells of target-free signal there are); then the new coil is left alone for three minutes from
+power-on to measure its stability.
 
 The simulated bench is deliberately not the design: the aluminium ball is a cast alloy at about
 half the handbook conductivity, the steel ball is less permeable than the model's default, and the
-coils' tuning capacitors are 2-3 % off their marked values. So the design prediction (handbook
-materials, marked values) and the measurement differ as they would on a real bench, while the
-truth of the recording is known exactly.
+coils' tuning capacitors are 2-3 % off their marked values, and the balls are finite (the truth
+model of :mod:`coilshift.sim.fields` averages the field over their volume). So the design
+prediction (handbook materials, marked values) and the measurement differ as they would on a real
+bench, while the truth of the recording is known exactly.
 
 Everything runs on the normal code path: :mod:`coilshift.sim` renders WAV files, the recording
 pipeline tracks them into run folders, the calibration analysis writes its report, the stability
@@ -37,7 +41,9 @@ from coilshift.sim.render import plan, simulate
 from coilshift.sim.script import parse_script
 
 SAMPLE_RATE_HZ = 48000
-DISTANCES_MM = [20, 40, 70, 110, 160]
+DISTANCES_MM = [20, 40, 70, 110, 160, 230]
+#: the first target-free baseline (s): many dwells long, so the noise behind the threshold is well known
+FIRST_BASELINE_S = 40.0
 REFERENCE = {"steel ball": "ferrous"}  # the piece whose call is known, to check polarity
 
 #: the coils as designed (what the coil files say)
@@ -59,10 +65,11 @@ PIECES_DESIGN = {
 }
 #: the test pieces as they really are on the simulated bench
 PIECES_BENCH = {
-    "steel ball": {"material": "mild_steel", "diameter_mm": 25, "mu_r": 70},
-    "aluminium ball": {"material": "aluminium", "diameter_mm": 25, "sigma": 1.9e7},  # cast alloy, ~33 % IACS
-    "brass ball": {"material": "brass", "diameter_mm": 20},
-    "ferrite slug": {"material": "ferrite", "diameter_mm": 10},
+    "steel ball": {"material": "mild_steel", "diameter_mm": 25, "mu_r": 70, "finite_size": True},
+    "aluminium ball": {"material": "aluminium", "diameter_mm": 25, "sigma": 1.9e7,  # cast alloy, ~33 % IACS
+                       "finite_size": True},
+    "brass ball": {"material": "brass", "diameter_mm": 20, "finite_size": True},
+    "ferrite slug": {"material": "ferrite", "diameter_mm": 10, "finite_size": True},
     "nylon block": {"material": "plastic", "diameter_mm": 30},
 }
 
@@ -83,7 +90,7 @@ def calibration_script(coil_key: str, seed: int) -> dict:
                        "white_fm_hz": 0.006 if old else 0.004, "random_walk_hz": 0.0006},
         "targets": PIECES_BENCH,
         "session": {"move_s": 0.6, "hand_hz": 0.03,
-                    "steps": [{"target": "baseline", "hold_s": 6.0},
+                    "steps": [{"target": "baseline", "hold_s": FIRST_BASELINE_S},
                               {"sweep": {"targets": list(PIECES_BENCH), "distances_mm": DISTANCES_MM,
                                          "hold_s": 3.5, "baseline_s": 2.5}}]},
         "truth": {"thresholds_hz": [0.05, 0.1], "class_floor_hz": 0.02},
@@ -118,6 +125,14 @@ class DemoRow:
     range_ci_mm: tuple | None
     design_mm: float
     true_mm: float
+    range_basis: str = ""
+
+    @property
+    def true_inside(self) -> bool | None:
+        """The bench's exact range lies inside the reported interval (None: nothing to compare)."""
+        if self.range_ci_mm is None or not math.isfinite(self.true_mm) or self.true_mm <= 0:
+            return None
+        return bool(self.range_ci_mm[0] <= self.true_mm <= self.range_ci_mm[1])
 
 
 def _track(recording: Path, markers: Path | None, run_dir: Path) -> dict:
@@ -195,7 +210,8 @@ def run_demo(out_dir: str | os.PathLike, force: bool = False,
 
     say("analysing the stability run")
     slog = read_log(out / "runs" / "B-200-stability", columns=("flags",))
-    stab = analyse_stability(slog.t_s, slog.freq_hz, slog.usable(), source="B-200 stability run")
+    stab = analyse_stability(slog.t_s, slog.freq_hz, slog.usable(), source="B-200 stability run",
+                             frame_s=slog.meta["tracker"]["frame_ms"] / 1000.0)  # marks taus inside one frame
     (out / "stability").mkdir(exist_ok=True)
     write_stability_outputs(stab, out / "stability")
 
@@ -208,7 +224,7 @@ def run_demo(out_dir: str | os.PathLike, force: bool = False,
             nearest = min(st.distance_mm for st in p.script.steps if st.target == t.target)
             design = predicted_range_mm(reports[key], models[t.target], res.baseline_hz, threshold_hz=thr)
             rows.append(DemoRow(key, t.target, resp.expected_class(nearest, 3 * res.noise_hz),
-                                t.cls, t.range.range_mm, t.range.ci_mm, design, resp.range_mm(thr)))
+                                t.cls, t.range.range_mm, t.range.ci_mm, design, resp.range_mm(thr), t.range.basis))
     elapsed = time.monotonic() - t_start
     summary = {
         "report": str(out / "report.html"),
@@ -217,8 +233,9 @@ def run_demo(out_dir: str | os.PathLike, force: bool = False,
         "noise_hz": {k: r.noise_hz for k, r in results.items()},
         "stability": {"oadev_hz_at_1s": _at_tau(stab, 1.0), "drift_hz_per_min": stab.drift.rate_hz_per_min,
                       "warmup_s": stab.warmup.warmup_s if stab.warmup.settled else None},
-        "rows": [vars(r) for r in rows],
+        "rows": [dict(vars(r), true_inside=r.true_inside) for r in rows],
         "all_classes_right": all(r.expected == r.measured for r in rows),
+        "all_true_ranges_inside": all(r.true_inside is not False for r in rows),
         "range_gain_b200_over_a150": range_gains([vars(r) for r in rows]),
         "polarity_warnings": [w for r in results.values() for w in r.warnings if "polarity" in w.lower()],
         "elapsed_s": elapsed,
@@ -235,13 +252,16 @@ def _at_tau(stab, tau_s: float) -> float | None:
 
 def summary_table(summary: dict) -> str:
     """The short text table the command prints."""
-    head = f"{'coil':<7} {'target':<15} {'truth':<14} {'measured':<14} {'range mm (95% CI)':<20} {'design mm':>9} {'true mm':>8}"
+    head = (f"{'coil':<7} {'target':<15} {'truth':<14} {'measured':<14} {'range mm (95% CI)':<20} {'basis':<12} "
+            f"{'design mm':>9} {'true mm':>8} {'true in CI':>10}")
     lines = [head, "-" * len(head)]
+    inside = {None: "-", True: "yes", False: "NO"}
     for r in summary["rows"]:
         ci = r["range_ci_mm"]
         rng = _fmt_mm(r["range_mm"]) + (f" ({ci[0]:.0f}-{ci[1]:.0f})" if ci else "")
         lines.append(f"{r['coil']:<7} {r['target']:<15} {r['expected']:<14} {r['measured']:<14} {rng:<20} "
-                     f"{_fmt_mm(r['design_mm']):>9} {_fmt_mm(r['true_mm']):>8}")
+                     f"{r.get('range_basis') or '-':<12} {_fmt_mm(r['design_mm']):>9} {_fmt_mm(r['true_mm']):>8} "
+                     f"{inside[r.get('true_inside')]:>10}")
     gains = summary.get("range_gain_b200_over_a150") or {}
     if gains:
         lines.append("")
@@ -262,9 +282,11 @@ def _report_html(summary: dict, rows: list[DemoRow], results: dict) -> str:
     for r in rows:
         ok = r.expected == r.measured
         ci = f" ({r.range_ci_mm[0]:.0f}-{r.range_ci_mm[1]:.0f})" if r.range_ci_mm else ""
+        inside = {None: "-", True: "yes", False: "NO"}[r.true_inside]
         trs.append(f"<tr><td>{e(r.coil)}</td><td>{e(r.target)}</td><td>{e(r.expected)}</td>"
                    f"<td class='{'' if ok else 'bad'}'>{e(r.measured)}</td><td>{_fmt_mm(r.range_mm)}{ci}</td>"
-                   f"<td>{_fmt_mm(r.design_mm)}</td><td>{_fmt_mm(r.true_mm)}</td></tr>")
+                   f"<td>{e(r.range_basis or '-')}</td><td>{_fmt_mm(r.design_mm)}</td><td>{_fmt_mm(r.true_mm)}</td>"
+                   f"<td class='{'bad' if r.true_inside is False else ''}'>{inside}</td></tr>")
     st = summary["stability"]
     warm = "did not settle" if st["warmup_s"] is None else f"{st['warmup_s']:.0f} s"
     oadev = "-" if st["oadev_hz_at_1s"] is None else f"{1000 * st['oadev_hz_at_1s']:.2f} mHz"
@@ -281,9 +303,12 @@ capacitors a few percent off), as a real bench does.</p>
 <h2>Calls and detection ranges</h2>
 <p>Threshold per coil: {e(thr)}. "design" is the range the coil and target models predict from the
 coil files and handbook materials; "true" is the simulated bench's exact range at the same threshold;
-"truth" is the call the simulated response deserves.</p>
+"truth" is the call the simulated response deserves. "basis": measured (interpolated between two
+calibration points) or extrapolated (past the farthest point, from a fit that passed its chi-squared
+test). The interval carries the point errors, the placement tolerance, the threshold's noise estimate
+and the interpolation model (see the calibration report for each one's share).</p>
 <table><tr><th>coil</th><th>target</th><th>truth</th><th>measured</th><th>range mm (95% CI)</th>
-<th>design mm</th><th>true mm</th></tr>{''.join(trs)}</table>
+<th>basis</th><th>design mm</th><th>true mm</th><th>true in CI</th></tr>{''.join(trs)}</table>
 <p>"-": the range is undefined (no reading reaches the threshold, or the target gives no response).
 B-200 range over A-150 range: {e(", ".join(f"{k} {v:.2f}" for k, v in summary["range_gain_b200_over_a150"].items()))}.</p>
 <p>Full calibration report with curves, residuals, time series and the comparison table:

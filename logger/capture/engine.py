@@ -8,27 +8,19 @@ frame's ``t_s`` stays on the true audio timeline (samples delivered plus samples
 
 The worker frames and tracks the audio and flags frames that overlap an input overflow or follow
 a marker; the post-processing shared with batch tracking (:mod:`coilshift.logger.pipeline.stage`)
-applies the corrections, holds the first ``baseline_s`` seconds of frames until the baseline
-(their median) is known, and appends rows to the run log about four times a second
+applies the corrections and the baseline (the median of the first ``baseline_s`` seconds, and of
+each re-zero window; rows inside a window are written at once, with ``shift_hz`` left for the
+reader to fill in), and appends rows to the run log about four times a second
 (:class:`~coilshift.logger.runfolder.writer.RunWriter` flushes every append and fsyncs at least every
 ``fsync_interval_s``). run.json is written before the first sample and replaced atomically at
 the end with the totals. A source error or a source that stops delivering ends the run; the data
 logged so far is kept and the reason recorded. Markers, re-zero requests and the live snapshot
 are the session's (:mod:`coilshift.logger.capture.session`).
 
-Any object with this interface is a block source (a soundcard stream,
-:class:`~coilshift.logger.sources.paced.PacedSource`, a scripted fake in the tests):
-
-``open(deliver, fail)``
-    start streaming; call ``deliver(block, adc_time_s, overflow)`` from the real-time thread for
-    every block (1-D float array, the chosen channel, owned by the receiver), ``fail(message)``
-    on a fatal stream error. Returns once streaming has started.
-``close()``
-    stop streaming; no ``deliver`` call may follow its return.
-``sample_rate_hz``
-    the rate the stream actually runs at (valid after ``open``).
-``describe() -> dict``
-    what the stream actually delivered (device, rate, latency, ...), for run.json.
+The source is any :class:`~coilshift.logger.sources.protocol.BlockSource` (a soundcard stream,
+:class:`~coilshift.logger.sources.paced.PacedSource`, a scripted fake in the tests): ``open(deliver,
+fail)`` starts it, ``deliver(block, adc_time_s, overflow)`` is called from its real-time thread,
+``close()`` stops it (waited for at most ``close_timeout_s``: a dead device's driver may hang).
 """
 
 from __future__ import annotations
@@ -49,6 +41,7 @@ from coilshift.logger.errors import InputError, setting
 from coilshift.logger.pipeline.runmeta import pending_baseline_meta, run_meta, tracker_meta
 from coilshift.logger.pipeline.stage import FrameStage, LogFeed
 from coilshift.logger.runfolder.writer import RunWriter
+from coilshift.logger.waiting import call_with_timeout
 
 #: the delivered-rate measurement starts this far into the run
 RATE_SETTLE_S = 2.0
@@ -79,12 +72,19 @@ class CaptureEngine:
     track_batch_s : audio is handed to the tracker in batches of about this length
     tracker_factory : ``f(sample_rate_hz, settings)`` making a streaming tracker; default
         :class:`coilshift.logger.tracking.tracker.FrameTracker`
+    claim : a :class:`~coilshift.logger.runfolder.folders.RunClaim` for ``run_dir``, taken
+        only once the input is open and the tracker accepts its rate (so a refused start leaves
+        an old run in the folder whole) and released at the end; None when the caller has
+        prepared ``run_dir`` itself
+    close_timeout_s : how long :meth:`stop` waits for the source to close (a dead device's
+        driver may never return); after that the stream is abandoned and the run ends anyway
     """
 
     def __init__(self, source, run_dir: str | Path, settings, corrections=None, *, baseline_s: float = 2.0,
                  save_audio: bool = False, max_seconds: float | None = None, meta: dict | None = None,
                  queue_blocks: int = 4000, append_interval_s: float = 0.25, fsync_interval_s: float = 0.75,
-                 stall_timeout_s: float = 3.0, track_batch_s: float = 0.05, tracker_factory=None):
+                 stall_timeout_s: float = 3.0, track_batch_s: float = 0.05, tracker_factory=None,
+                 claim=None, close_timeout_s: float = 5.0):
         if baseline_s <= 0:
             raise InputError(f"{setting('baseline_s')} must be > 0, got {baseline_s}")
         if max_seconds is not None and max_seconds <= 0:
@@ -101,6 +101,9 @@ class CaptureEngine:
         self.fsync_interval_s = fsync_interval_s
         self.stall_timeout_s = stall_timeout_s
         self._tracker_factory = tracker_factory
+        self.claim = claim
+        self.close_timeout_s = float(close_timeout_s)
+        self.stream_abandoned = False  # the source did not close within close_timeout_s
         self.track_batch_s = track_batch_s
         self.sample_rate_hz = math.nan
         self.writer: RunWriter | None = None
@@ -163,14 +166,9 @@ class CaptureEngine:
                             tracker=tracker_meta(self.settings),
                             corrections=self.corrections.to_dict() if self.corrections is not None else None,
                             baseline=pending_baseline_meta(self.baseline_s), extra=self.extra_meta)
-            if self.save_audio:
-                from coilshift.logger.capture.audiosave import AudioRecorder
-
-                self.audio = AudioRecorder(self.run_dir, self.sample_rate_hz)
-                meta["audio"] = self.audio.describe()
-            self.writer = RunWriter(self.run_dir, meta, fsync_interval_s=self.fsync_interval_s)
+            self._open_run_folder(meta)
         except BaseException:
-            self.source.close()
+            self._close_source()
             raise
         self._feed = LogFeed(self.writer, self.baseline_s, on_baseline=self.session.on_baseline,
                              on_rows=self._rows_written)
@@ -185,6 +183,34 @@ class CaptureEngine:
         self._worker = threading.Thread(target=self._work, name="coilshift-capture-worker", daemon=True)
         self._worker.start()
 
+    def _open_run_folder(self, meta: dict) -> None:
+        """Take the claimed folder (an old run set aside), write run.json and the log header;
+        a failure here puts the old run back."""
+        def write_first():
+            try:
+                if self.save_audio:
+                    from coilshift.logger.capture.audiosave import AudioRecorder
+
+                    self.audio = AudioRecorder(self.run_dir, self.sample_rate_hz)
+                    meta["audio"] = self.audio.describe()
+                self.writer = RunWriter(self.run_dir, meta, fsync_interval_s=self.fsync_interval_s)
+            except BaseException:
+                if self.audio is not None:
+                    self.audio.close()
+                raise
+
+        if self.claim is None:
+            write_first()
+        else:
+            self.claim.start_run(write_first)
+
+    def _close_source(self) -> BaseException | None:
+        """Close the source, waiting at most ``close_timeout_s``; returns what close() raised."""
+        done, error = call_with_timeout(self.source.close, self.close_timeout_s, name="coilshift-source-close")
+        if not done or getattr(self.source, "abandoned", False):
+            self.stream_abandoned = True
+        return error
+
     def stop(self) -> dict:
         """Stop the source, drain the queue, write the remaining rows and the final run.json.
 
@@ -194,14 +220,18 @@ class CaptureEngine:
             return self._summary
         if not self._started:
             raise RuntimeError("capture was not started")
-        try:
-            self.source.close()
-        finally:
-            self._stop_request.set()
-            if self._worker is not None:
-                self._worker.join()
+        close_error = self._close_source()
+        self._stop_request.set()
+        if self._worker is not None:
+            self._worker.join()
         if self._worker_error is not None:
             raise self._worker_error
+        if self.stream_abandoned:  # say so in the summary and in run.json
+            note = "the input stream would not close (a hung audio driver) and was abandoned"
+            self._summary["stream_close"] = note
+            self.writer.amend_totals(stream_close=note)
+        if close_error is not None:
+            raise close_error
         return self._summary  # type: ignore[return-value]
 
     def wait(self, timeout: float | None = None) -> bool:
@@ -218,10 +248,8 @@ class CaptureEngine:
         return self.session.add_marker(label, distance_mm)
 
     def rezero(self) -> float:
-        """Set a new baseline: the median of the next ``baseline_s`` seconds of usable frames.
-
-        Rows of that window are held and written with the new baseline. Returns the time in s.
-        """
+        """Set a new baseline: the median of the next ``baseline_s`` seconds of usable frames;
+        returns the time in s. (Rows of the window are written as they come; see LogFeed.)"""
         return self.session.rezero()
 
     def snapshot(self) -> CaptureSnapshot:
@@ -272,6 +300,8 @@ class CaptureEngine:
             except BaseException:
                 pass
         finally:
+            if self.claim is not None:
+                self.claim.release()  # another command may use the folder now
             self.finished.set()
 
     def _work_loop(self) -> None:
@@ -411,22 +441,9 @@ class CaptureEngine:
 
     def _totals(self, end_s: float, n_markers: int) -> dict:
         """run.json ``totals`` of the run (the writer adds the rows and flag counts)."""
-        counts = self._health.counts
-        totals = {
-            "duration_s": round(end_s, 6),
-            "ended_by": self._ended_by,
-            "message": self._message,
-            "samples": int(self._delivered),
-            "overflows": counts["overflows"],
-            "gaps": counts["gaps"],
-            "queue_overruns": counts["queue_overruns"],
-            "dropped_blocks": self._overrun_blocks,
-            "lost_samples": counts["lost_samples"],
-            "device_errors": counts["device_errors"],
-            "faults": self._health.faults,
-            "markers": n_markers,
-            "baselines": self._feed.baselines,
-        }
+        totals = {"duration_s": round(end_s, 6), "ended_by": self._ended_by, "message": self._message,
+                  "samples": int(self._delivered), **self._health.totals(), "dropped_blocks": self._overrun_blocks,
+                  "markers": n_markers, "baselines": self._feed.baselines}
         totals.update(measured_rates(self._arrival_first, self._arrival_last, self._adc_first, self._adc_last,
                                      self.sample_rate_hz))
         return totals

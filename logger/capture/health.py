@@ -30,6 +30,12 @@ class StreamHealth:
             self.faults.append({"kind": kind, "t_s": round(t_s, 6), "samples": int(samples), "detail": detail})
         return f"{kind} at {t_s:.2f} s: {detail}"
 
+    def totals(self) -> dict:
+        """The fault counts and events, as run.json ``totals`` lists them."""
+        c = self.counts
+        return {"overflows": c["overflows"], "gaps": c["gaps"], "queue_overruns": c["queue_overruns"],
+                "lost_samples": c["lost_samples"], "device_errors": c["device_errors"], "faults": self.faults}
+
 
 class LevelMeter:
     """The input's peak level, with meter ballistics: an instant rise, a fall of

@@ -37,6 +37,7 @@ class CaptureSnapshot:
     peak_dbfs: float = -math.inf
     clipping: bool = False
     frame_flags: int = 0
+    no_tone_frames: int = 0
     overflows: int = 0
     gaps: int = 0
     lost_samples: int = 0
@@ -135,7 +136,9 @@ class CaptureSession:
                 self._markers.write(end_s)
             return list(self._markers.closed)
 
-    def show_frame(self, freq_hz: float, baseline_hz: float, amp_dbfs: float, snr_db: float, flags: int) -> None:
+    def show_frame(self, freq_hz: float, baseline_hz: float, amp_dbfs: float, snr_db: float, flags: int,
+                   no_tone_frames: int = 0) -> None:
+        """The latest frame; ``no_tone_frames``: how many frames since the last call had no tone."""
         with self._lock:
             s = self._snap
             s.freq_hz = freq_hz
@@ -144,6 +147,7 @@ class CaptureSession:
             s.amp_dbfs = amp_dbfs
             s.snr_db = snr_db
             s.frame_flags = flags
+            s.no_tone_frames += no_tone_frames
 
     def show_level(self, peak_dbfs: float, clipping: bool) -> None:
         with self._lock:

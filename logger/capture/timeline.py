@@ -98,7 +98,8 @@ class FrameTimeline:
         self.feed.emit(frames)
         last = len(frames) - 1
         self.session.show_frame(float(frames.freq_hz[last]), self.feed.writer.baseline_hz,
-                                float(frames.amp_dbfs[last]), float(frames.snr_db[last]), int(frames.flags[last]))
+                                float(frames.amp_dbfs[last]), float(frames.snr_db[last]), int(frames.flags[last]),
+                                int(np.count_nonzero(frames.flags & _flags.NO_TONE)))
 
     def _overflow_flags(self, t_s: np.ndarray) -> np.ndarray:
         """OVERFLOW on the frames (raw centre times ``t_s``) that overlap a reported overflow."""

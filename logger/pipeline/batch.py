@@ -27,7 +27,7 @@ from coilshift.logger.pipeline.runmeta import baseline_meta, run_meta, tracker_m
 from coilshift.logger.pipeline.stage import FrameStage, LogFeed
 from coilshift.logger.runfolder import columns as _columns
 from coilshift.logger.runfolder import flags as _flags
-from coilshift.logger.runfolder.folders import MARKERS_NAME, refuse_existing, replacing_run
+from coilshift.logger.runfolder.folders import MARKERS_NAME, RunClaim
 from coilshift.logger.runfolder.frames import FrameTable
 from coilshift.logger.runfolder.markers import Marker, check_within, markers_to_csv, read_markers
 from coilshift.logger.runfolder.writer import RunWriter, write_markers_copy
@@ -130,10 +130,21 @@ def track_source(source, settings, corrections: Corrections | None, run_dir: str
     ------
     InputError : bad recording or markers, a recording without a tone, an existing folder.
     """
-    corrections = corrections or Corrections()
     run_dir = Path(run_dir)
+    claim = RunClaim(run_dir, force)
+    claim.check()  # before hours of tracking rather than after
+    claim.hold()  # and no other coilshift command writes into it meanwhile
+    try:
+        return _track_into(claim, source, settings, corrections, markers, baseline_s, progress)
+    finally:
+        claim.release()
+
+
+def _track_into(claim, source, settings, corrections, markers, baseline_s: float, progress) -> dict:
+    """:func:`track_source`, with the run folder claimed (and, if it exists, locked)."""
+    corrections = corrections or Corrections()
+    run_dir = claim.run_dir
     name = source_name(source)
-    refuse_existing(run_dir, force)  # before hours of tracking rather than after
     if not baseline_s > 0:
         raise InputError(f"baseline window ({setting('baseline_s')}) must be positive, got {baseline_s:g} s")
     marker_list, markers_name = _load_markers(markers)
@@ -143,7 +154,8 @@ def track_source(source, settings, corrections: Corrections | None, run_dir: str
         check_within(marker_list, duration_s, markers_name)
 
     raw, tracker = run_tracker(source, settings, progress)
-    warnings = corrections.warnings(raw, fs)
+    warnings = list(getattr(source, "warnings", []))  # e.g. a WAV header its writer never finished
+    warnings += corrections.warnings(raw, fs)
     warnings += level_warnings(raw)
     frames = FrameStage(fs, corrections, source.amp_offset_db).apply(raw)
     has_tone = _tone_frames(frames, name)
@@ -158,7 +170,7 @@ def track_source(source, settings, corrections: Corrections | None, run_dir: str
                     markers={"file": MARKERS_NAME, "count": len(marker_list)} if marker_list else None,
                     warnings=warnings)
     totals = {"frames": len(frames), "tone_frames": int(has_tone.sum()), "duration_s": duration_s}
-    _write_run(run_dir, force, meta, frames, marker_list, totals)
+    _write_run(claim, meta, frames, marker_list, totals)
     return _summary(run_dir, frames, has_tone, base, meta, source, corrections)
 
 
@@ -173,10 +185,9 @@ def _tone_frames(frames: FrameTable, name: str) -> np.ndarray:
     return has_tone
 
 
-def _write_run(run_dir: Path, force: bool, meta: dict, frames: FrameTable, marker_list: list[Marker],
-               totals: dict) -> None:
+def _write_run(claim: RunClaim, meta: dict, frames: FrameTable, marker_list: list[Marker], totals: dict) -> None:
     """Write the run folder all or nothing (an old run replaced under force comes back on failure)."""
-    with replacing_run(run_dir, force) as folder:
+    with claim.replacing() as folder:
         writer = RunWriter(folder, meta)
         try:
             feed = LogFeed(writer)  # the baseline is in meta already: no window to wait for

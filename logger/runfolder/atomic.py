@@ -13,9 +13,13 @@ def write_bytes_atomic(path: str | os.PathLike, data: bytes) -> None:
     """Write ``data`` to ``path`` via a temp file in the same folder, fsync, then rename.
 
     An interrupted call leaves either the old file or the new one, never half of either.
+    An OSError (disk full, read-only folder) names ``path``, whatever step failed.
     """
     path = Path(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    except OSError as exc:
+        raise named_error(exc, path) from None
     try:
         # mkstemp makes the file private (0600); give it the mode a plain open() would
         os.chmod(tmp, 0o666 & ~_umask())
@@ -24,13 +28,20 @@ def write_bytes_atomic(path: str | os.PathLike, data: bytes) -> None:
             fh.flush()
             os.fsync(fh.fileno())
         os.replace(tmp, path)
-    except BaseException:
+    except BaseException as exc:
         try:
             os.unlink(tmp)
-        except FileNotFoundError:
+        except OSError:
             pass
+        if isinstance(exc, OSError):
+            raise named_error(exc, path) from None
         raise
     _fsync_dir(path.parent)
+
+
+def named_error(exc: OSError, path: str | os.PathLike) -> OSError:
+    """``exc`` as an OSError that names ``path`` (a write to an open file names no file)."""
+    return OSError(exc.errno, exc.strerror or str(exc), str(path))
 
 
 def write_text_atomic(path: str | os.PathLike, text: str) -> None:

@@ -18,6 +18,9 @@ from coilshift.logger.textfile import read_text
 
 COLUMNS = ("start_s", "end_s", "target", "distance_mm")
 BASELINE = "baseline"
+#: largest times and distances a marker may give (a damaged cell, not a bench, beyond them)
+MAX_TIME_S = 1e10
+MAX_DISTANCE_MM = 1e6
 
 
 @dataclass(frozen=True)
@@ -57,8 +60,12 @@ def parse_markers(text: str, name: str = "markers") -> list[Marker]:
         target = cells["target"]
         if not target:
             raise InputError(f"{name}: row {lineno}: empty target name")
+        if not target.isprintable():  # a damaged cell; it would reach reports and terminals raw
+            raise InputError(f"{name}: row {lineno}: control characters in the target name {target[:20]!r}")
         if not (math.isfinite(start) and math.isfinite(end)) or start < 0 or end <= start:
             raise InputError(f"{name}: row {lineno}: need 0 <= start_s < end_s, got {start}, {end}")
+        if end > MAX_TIME_S:
+            raise InputError(f"{name}: row {lineno}: end_s {end:g} is beyond any run ({MAX_TIME_S:g} s)")
         if target == BASELINE:
             dist = math.nan
         else:
@@ -68,6 +75,9 @@ def parse_markers(text: str, name: str = "markers") -> list[Marker]:
                 raise InputError(f"{name}: row {lineno}: distance_mm must be a number for target {target!r}") from None
             if not math.isfinite(dist) or dist < 0:
                 raise InputError(f"{name}: row {lineno}: distance_mm must be >= 0, got {cells['distance_mm']}")
+            if dist > MAX_DISTANCE_MM:
+                raise InputError(f"{name}: row {lineno}: distance_mm {dist:g} is beyond any bench "
+                                 f"(at most {MAX_DISTANCE_MM:g} mm)")
         out.append(Marker(start, end, target, dist))
     if not out:
         raise InputError(f"{name}: header only, no markers")

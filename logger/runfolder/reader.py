@@ -8,8 +8,8 @@ run was interrupted; never modifies what it reads.
 
 from __future__ import annotations
 
+import csv
 import io
-import json
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -22,9 +22,15 @@ from coilshift.logger.errors import InputError
 from coilshift.logger.runfolder.columns import FLAG_COLUMNS, NUMERIC
 from coilshift.logger.runfolder.folders import LOG_NAME, MARKERS_NAME, META_NAME
 from coilshift.logger.runfolder.markers import Marker, read_markers
+from coilshift.logger.textfile import read_json, require_regular_file
 
 #: columns every log must have (a bare CSV from another instrument too)
 REQUIRED = ("t_s", "freq_hz")
+#: largest magnitude accepted in a numeric column: beyond it a value is a damaged cell, not a
+#: reading (10 GHz, 300 years, 10 000 dB), and squaring it in the analysis would overflow
+LIMITS = {"t_s": 1e10, "freq_hz": 1e10, "shift_hz": 1e10, "amp_dbfs": 1e4, "snr_db": 1e4}
+#: field separators a log may use (a spreadsheet saves ';' where the decimal mark is ',')
+SEPARATORS = (",", ";", "\t")
 
 
 @dataclass
@@ -57,12 +63,16 @@ class FrequencyLog:
 
     @property
     def baseline_hz(self) -> float:
-        """Baseline from run.json, else the median frequency of the first 2 s."""
-        b = self.meta.get("baseline", {}).get("freq_hz")
-        if b is not None and np.isfinite(b):
+        """Baseline from run.json, else the median frequency of the first 2 s (or of the live
+        run's first baseline window, when it ended before the window closed)."""
+        base = self.meta.get("baseline") if isinstance(self.meta.get("baseline"), dict) else {}
+        b = base.get("freq_hz")
+        if isinstance(b, (int, float)) and np.isfinite(b):
             return float(b)
+        w = base.get("window_s")
+        window_s = float(w) if isinstance(w, (int, float)) and 0 < w < LIMITS["t_s"] else 2.0
         t, f = self.t_s, self.freq_hz
-        sel = (t <= t[0] + 2.0) & np.isfinite(f) if len(t) else np.zeros(0, bool)
+        sel = (t <= t[0] + window_s) & np.isfinite(f) if len(t) else np.zeros(0, bool)
         return float(np.median(f[sel])) if sel.any() else float("nan")
 
     @property
@@ -86,8 +96,8 @@ def _resolve(path: Path) -> tuple[Path, Path | None, Path | None]:
         meta = path / META_NAME
         markers = path / MARKERS_NAME
         return log, meta if meta.is_file() else None, markers if markers.is_file() else None
-    if path.is_file():
-        return path, None, None
+    if path.exists():
+        return require_regular_file(path, "log file"), None, None
     raise InputError(f"{path}: no such file or folder")
 
 
@@ -110,8 +120,9 @@ class _Limited(io.RawIOBase):
         return len(data)
 
 
-def _inspect(log_path: Path) -> tuple[int, bool, list[str]]:
-    """Size of the whole-line part of the file, whether a partial last line was cut, the header."""
+def _inspect(log_path: Path) -> tuple[int, bool, tuple[list[str], str, str]]:
+    """Size of the whole-line part of the file, whether a partial last line was cut, and the
+    header with the field separator and decimal mark."""
     try:
         with open(log_path, "rb") as fh:
             head = fh.read(65536)
@@ -127,12 +138,98 @@ def _inspect(log_path: Path) -> tuple[int, bool, list[str]]:
     if interrupted:
         cut = tail.rfind(b"\n")
         size = size - len(tail) + cut + 1 if cut >= 0 else 0
-    first = head.split(b"\n", 1)[0]
+    lines = head.split(b"\n", 2)
     try:
-        header = [h.strip() for h in first.decode("utf-8-sig").strip().split(",")]
+        first = lines[0].decode("utf-8-sig")
+        second = lines[1].decode("utf-8") if len(lines) > 1 else ""
     except UnicodeDecodeError:
         raise InputError(f"{log_path}: not a text CSV file") from None
-    return size, interrupted, header
+    sep, decimal = _separator(first, second)
+    header = [h.strip() for h in next(csv.reader([first.strip()], delimiter=sep), [])]
+    return size, interrupted, (header, sep, decimal)
+
+
+def _separator(header: str, first_row: str) -> tuple[str, str]:
+    """The field separator (the one splitting the header into most fields; ',' on a tie) and the
+    decimal mark (',' when fields are ';'-separated and the first row has commas)."""
+    sep = max(SEPARATORS, key=lambda c: (header.count(c), c == ","))
+    decimal = "," if sep == ";" and "," in first_row else "."
+    return sep, decimal
+
+
+def _unique(names: list[str]) -> list[str]:
+    """Header names made unique (a repeated name gets .1, .2 ...), as pandas would."""
+    seen: dict[str, int] = {}
+    out = []
+    for n in names:
+        k = seen.get(n, 0)
+        seen[n] = k + 1
+        out.append(n if k == 0 else f"{n}.{k}")
+    return out
+
+
+def _short(text: str, limit: int = 80) -> str:
+    """A library message cut to one short printable line (a damaged cell can hold anything)."""
+    line = str(text).splitlines()[0] if str(text) else ""
+    line = "".join(c if c.isprintable() else repr(c)[1:-1] for c in line)
+    return line if len(line) <= limit else line[:limit] + "..."
+
+
+def _check_ranges(table: pd.DataFrame, log_path: Path) -> None:
+    """Refuse values no log can hold (a damaged cell, a foreign column in other units)."""
+    for name, limit in LIMITS.items():
+        if name not in table:
+            continue
+        v = table[name].to_numpy(float)
+        bad = np.isfinite(v) & (np.abs(v) > limit)
+        if name == "freq_hz":
+            bad |= np.isfinite(v) & (v < 0)
+        if bad.any():
+            k = int(np.argmax(bad))
+            raise InputError(f"{log_path}: {name} {v[k]:g} on row {k + 2} is out of range "
+                             f"(a {name} value lies within {'0' if name == 'freq_hz' else f'{-limit:g}'}..{limit:g})")
+
+
+def _window_baselines(meta: dict) -> tuple[np.ndarray, np.ndarray]:
+    """Start times and frequencies of the live run's baseline windows that found a baseline,
+    from run.json (``totals.baselines`` of a finished run, else ``baseline`` and its history)."""
+    totals = meta.get("totals") if isinstance(meta.get("totals"), dict) else {}
+    base = meta.get("baseline") if isinstance(meta.get("baseline"), dict) else {}
+    entries = totals.get("baselines")
+    if not isinstance(entries, list):
+        history = base.get("history")
+        entries = (list(history) if isinstance(history, list) else []) + [base]
+    found = []
+    for e in entries:
+        if not isinstance(e, dict):
+            continue
+        t0, f0 = e.get("window_start_s"), e.get("freq_hz")
+        if all(isinstance(v, (int, float)) and not isinstance(v, bool) and np.isfinite(v) for v in (t0, f0)):
+            found.append((float(t0), float(f0)))
+    found.sort()
+    return np.array([t for t, _ in found]), np.array([f for _, f in found])
+
+
+def _fill_window_shifts(table: pd.DataFrame, meta: dict) -> None:
+    """Fill the empty shift_hz cells of rows written inside a baseline window: freq_hz minus the
+    baseline of the latest window that found one and started at or before the row."""
+    if "shift_hz" not in table or not meta:
+        return
+    shift = table["shift_hz"].to_numpy(float)
+    freq = table["freq_hz"].to_numpy(float)
+    blank = np.isnan(shift) & np.isfinite(freq)
+    if not blank.any():
+        return
+    starts, freqs = _window_baselines(meta)
+    if starts.size == 0:
+        return
+    t = table["t_s"].to_numpy(float)
+    k = np.searchsorted(starts, t, side="right") - 1
+    fill = blank & (k >= 0)
+    if fill.any():
+        shift = shift.copy()
+        shift[fill] = freq[fill] - freqs[k[fill]]
+        table["shift_hz"] = shift
 
 
 def read_log(path: str | os.PathLike, columns: tuple[str, ...] | None = None) -> FrequencyLog:
@@ -152,15 +249,15 @@ def read_log(path: str | os.PathLike, columns: tuple[str, ...] | None = None) ->
     log_path, meta_path, markers_path = _resolve(path)
     meta: dict = {}
     if meta_path is not None:
-        try:
-            meta = json.loads(meta_path.read_text(encoding="utf-8"))
-        except (ValueError, UnicodeDecodeError):
-            raise InputError(f"{meta_path}: not valid JSON") from None
+        meta = read_json(meta_path, "run.json")
         if not isinstance(meta, dict):
             raise InputError(f"{meta_path}: expected a JSON object")
-    size, interrupted, header = _inspect(log_path)
+    size, interrupted, (header, sep, decimal) = _inspect(log_path)
     if meta and meta.get("status") not in (None, "complete"):
         interrupted = True
+    for c in REQUIRED:
+        if header.count(c) > 1:
+            raise InputError(f"{log_path}: two columns named {c}")
     missing = [c for c in REQUIRED if c not in header]
     if missing:
         raise InputError(f"{log_path}: no {' or '.join(missing)} column (a log needs t_s and freq_hz)")
@@ -170,15 +267,16 @@ def read_log(path: str | os.PathLike, columns: tuple[str, ...] | None = None) ->
     try:
         with open(log_path, "rb") as fh:
             # read only whole lines: an interrupted writer may have left half a row at the end
-            table = pd.read_csv(io.BufferedReader(_Limited(fh, size), buffer_size=1 << 20), usecols=use, dtype=dtypes, skipinitialspace=True,
-                                encoding="utf-8-sig", keep_default_na=True)
+            table = pd.read_csv(io.BufferedReader(_Limited(fh, size), buffer_size=1 << 20), header=0,
+                                names=_unique(header), usecols=use, dtype=dtypes, skipinitialspace=True,
+                                sep=sep, decimal=decimal, encoding="utf-8-sig", keep_default_na=True)
     except pd.errors.EmptyDataError:
         raise InputError(f"{log_path}: no complete lines in the log") from None
     except pd.errors.ParserError as exc:
-        raise InputError(f"{log_path}: malformed CSV ({str(exc).splitlines()[0]})") from None
+        raise InputError(f"{log_path}: malformed CSV ({_short(exc)})") from None
     except (ValueError, UnicodeDecodeError) as exc:
-        first = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
-        raise InputError(f"{log_path}: non-numeric or unreadable value in a column ({first})") from None
+        raise InputError(f"{log_path}: non-numeric or unreadable value in a column "
+                         f"({_short(exc) or type(exc).__name__})") from None
     for name in FLAG_COLUMNS:
         if name in table:
             cats = table[name].cat.categories
@@ -194,5 +292,7 @@ def read_log(path: str | os.PathLike, columns: tuple[str, ...] | None = None) ->
         raise InputError(f"{log_path}: t_s does not increase (row {k + 3}: {t[k + 1]} after {t[k]})")
     if np.isinf(table["freq_hz"].to_numpy(float)).any():
         raise InputError(f"{log_path}: freq_hz has infinite values")
+    _check_ranges(table, log_path)
+    _fill_window_shifts(table, meta)
     markers = read_markers(markers_path) if markers_path is not None else []
     return FrequencyLog(table=table, meta=meta, markers=markers, interrupted=interrupted, source=str(path))

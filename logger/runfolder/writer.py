@@ -80,17 +80,28 @@ class RunWriter:
         os.fsync(self._fh.fileno())
         self._last_sync = time.monotonic()
 
-    def set_baseline(self, freq_hz: float, method: str, **details) -> None:
-        """Set (or re-zero) the baseline used for ``shift_hz`` of rows written from now on."""
+    def set_baseline(self, freq_hz: float, method: str, persist: bool = True, **details) -> None:
+        """Set (or re-zero) the baseline used for ``shift_hz`` of rows written from now on, and
+        rewrite run.json with it (``persist=False``: only at :meth:`close`, e.g. after the disk
+        filled up, when only the room kept for the final run.json is left)."""
         self.baseline_hz = float(freq_hz)
         self.meta["baseline"] = {"freq_hz": self.baseline_hz, "method": method, **details}
-        write_json_atomic(self.run_dir / META_NAME, self.meta)
+        if persist:
+            try:
+                write_json_atomic(self.run_dir / META_NAME, self.meta)
+            except OSError as exc:
+                self._write_error = self._write_error or exc  # no more rows: run.json lags behind them
+                raise
 
-    def append(self, frames: FrameTable) -> None:
-        """Write whole rows for ``frames``, flush, and fsync if the interval has passed."""
+    def append(self, frames: FrameTable, baseline_hz: float | None = None) -> None:
+        """Write whole rows for ``frames``, flush, and fsync if the interval has passed.
+
+        ``shift_hz`` is taken against ``baseline_hz`` when given (NaN: not known yet, the cells
+        are left empty), else against the current baseline.
+        """
         if len(frames) == 0:
             return
-        context = RowContext(self._start, self.baseline_hz)
+        context = RowContext(self._start, self.baseline_hz if baseline_hz is None else float(baseline_hz))
         columns = [cells(c, frames, context) for c in COLUMNS]
         for c, texts in zip(COLUMNS, columns):
             if c.kind == FLAGS:
@@ -154,6 +165,11 @@ class RunWriter:
         write_json_atomic(self.run_dir / META_NAME, self.meta)
         if error is not None:
             raise error
+
+    def amend_totals(self, **entries) -> None:
+        """Add entries to ``totals`` of a closed run's run.json (rewritten atomically)."""
+        self.meta.setdefault("totals", {}).update(entries)
+        write_json_atomic(self.run_dir / META_NAME, self.meta)
 
     def __enter__(self) -> "RunWriter":
         return self

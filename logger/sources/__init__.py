@@ -1,6 +1,7 @@
 """Signal sources, one module each: audio files, oscilloscope CSV exports, a synthetic oscillator and
-the soundcard, behind two small interfaces. May import :mod:`coilshift.logger.errors` and nothing
-else from coilshift.
+the soundcard, behind two small interfaces. May import :mod:`coilshift.logger.errors`,
+:mod:`coilshift.logger.textfile` (the regular-file check) and :mod:`coilshift.logger.waiting`,
+nothing else from coilshift.
 
 Two interfaces (:mod:`coilshift.logger.sources.protocol` documents them in full):
 

@@ -7,7 +7,9 @@ opens the file, because libsndfile silently reads a truncated or lying header.
 
 from __future__ import annotations
 
+import contextlib
 import datetime as _dt
+import io
 import os
 from pathlib import Path
 from typing import Iterator
@@ -52,12 +54,16 @@ class AudioFileSource:
         self._file = path_or_file
         self.container = container or sniff_format(path_or_file)
         self._bext_start = None
+        self._raw = None  # (offset, bytes, libsndfile subtype) of an unfinished WAV's samples
+        self.warnings: list[str] = []
         if self.container == "WAV":
             head, total = self._head_and_size()
-            self._bext_start = check_riff(head, total, self.name).bext_start
+            riff = check_riff(head, total, self.name)
+            self._bext_start = riff.bext_start
+            if riff.unfinished:
+                self._raw = _unfinished_samples(riff, self.name)
         try:
-            info = self._open()
-            with info as snd:
+            with self._open() as snd:
                 self.sample_rate_hz = float(snd.samplerate)
                 self.channels = int(snd.channels)
                 self.n_frames = int(snd.frames)
@@ -67,6 +73,9 @@ class AudioFileSource:
             raise InputError(f"{self.name}: cannot read as audio ({one_line(exc)})") from None
         self._check_header(channel)
         self.channel = int(channel)
+        if self._raw is not None:
+            self.warnings.append(f"warning: {self.name}: unfinished WAV header (data size 0: the recorder did not "
+                                 f"finish the file); read the {self.n_frames} samples to the end of the file")
 
     def _check_header(self, channel: int) -> None:
         """Refuse what libsndfile accepted but the tracker cannot use."""
@@ -94,12 +103,23 @@ class AudioFileSource:
         fh.seek(pos)
         return head, total
 
+    @contextlib.contextmanager
     def _open(self):
         import soundfile as sf
 
         if not is_path(self._file):
             self._file.seek(0)
-        return sf.SoundFile(self._file, "r")
+        if self._raw is None:
+            with sf.SoundFile(self._file, "r") as snd:
+                yield snd
+            return
+        # the header says no samples: read the bytes after it as they are, to the end of the file
+        offset, length, subtype, rate, channels = self._raw
+        with contextlib.ExitStack() as stack:
+            fh = stack.enter_context(open(self._file, "rb")) if is_path(self._file) else self._file
+            window = _Window(fh, offset, length)
+            yield stack.enter_context(sf.SoundFile(window, "r", format="RAW", subtype=subtype, samplerate=rate,
+                                                   channels=channels, endian="LITTLE"))
 
     @property
     def duration_s(self) -> float:
@@ -132,7 +152,8 @@ class AudioFileSource:
                              f"only {got} could be read")
 
     def describe(self) -> dict:
-        return {
+        extra = {"header_note": self.warnings[0]} if self.warnings else {}
+        return {**extra,
             "kind": "audio file",
             "path": self.name if is_path(self._file) else None,
             "name": Path(self.name).name,
@@ -152,3 +173,53 @@ class AudioFileSource:
         if self._bext_start is not None:
             return self._bext_start, START_FROM_FILE + " (BWF bext origination date/time, local time assumed)"
         return mtime_start(self._file, self.duration_s if duration_s is None else duration_s)
+
+
+#: (WAVE format tag, bits per sample) -> the libsndfile subtype that reads such samples raw
+_RAW_SUBTYPES = {(1, 8): "PCM_U8", (1, 16): "PCM_16", (1, 24): "PCM_24", (1, 32): "PCM_32",
+                 (3, 32): "FLOAT", (3, 64): "DOUBLE"}
+
+
+def _unfinished_samples(riff, name: str) -> tuple[int, int, str, int, int]:
+    """Where the samples of a WAV whose header was never finished lie, and how to read them.
+
+    Raises InputError when they cannot be read without the header (a compressed encoding).
+    """
+    tag, channels, rate, bits, block_align = riff.wave_format
+    subtype = _RAW_SUBTYPES.get((tag, bits))
+    if subtype is None or not rate or not block_align:
+        raise InputError(f"{name}: unfinished WAV header (data size 0, the writer did not finish the file) "
+                         f"in an encoding that cannot be read without it")
+    length = riff.data_present - riff.data_present % block_align  # whole sample frames only
+    return riff.data_offset, length, subtype, rate, channels
+
+
+class _Window(io.RawIOBase):
+    """A read-only, seekable view of ``length`` bytes of ``fh`` starting at ``offset``."""
+
+    def __init__(self, fh, offset: int, length: int):
+        self._fh, self._offset, self._length, self._pos = fh, offset, length, 0
+
+    def readable(self) -> bool:
+        return True
+
+    def seekable(self) -> bool:
+        return True
+
+    def seek(self, pos: int, whence: int = os.SEEK_SET) -> int:
+        base = {os.SEEK_SET: 0, os.SEEK_CUR: self._pos, os.SEEK_END: self._length}[whence]
+        self._pos = max(0, min(self._length, base + pos))
+        return self._pos
+
+    def tell(self) -> int:
+        return self._pos
+
+    def readinto(self, buf) -> int:
+        n = min(len(buf), self._length - self._pos)
+        if n <= 0:
+            return 0
+        self._fh.seek(self._offset + self._pos)
+        data = self._fh.read(n)
+        buf[: len(data)] = data
+        self._pos += len(data)
+        return len(data)

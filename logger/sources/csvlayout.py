@@ -17,7 +17,8 @@ from coilshift.logger.errors import InputError
 
 _TIME_NAME = re.compile(r"(^|[^a-z])(time|t|x-axis|x|sec|secs|second|seconds|s)([^a-z]|$)", re.I)
 _INDEX_NAME = re.compile(r"^(index|sample|samples|sequence|no\.?|n|#)$", re.I)
-_UNIT_IN_NAME = re.compile(r"[\(\[]\s*([a-zµμ]+)\s*[\)\]]", re.I)
+#: a bracketed unit in a column name, whatever it holds (an unknown unit is refused, not ignored)
+_UNIT_IN_NAME = re.compile(r"[\(\[]\s*([^\(\)\[\]]*?)\s*[\)\]]")
 #: bracketed unit in a column name -> factor to seconds / to volts
 TIME_UNITS = {"s": 1.0, "sec": 1.0, "second": 1.0, "seconds": 1.0, "ms": 1e-3, "us": 1e-6, "µs": 1e-6,
               "μs": 1e-6, "ns": 1e-9}
@@ -92,10 +93,15 @@ def _choose_separator(lines: list[str]) -> tuple[str | None, str]:
     return best[2], best[3]
 
 
+def _unit_key(unit: str) -> str:
+    """A unit as the tables spell it: lower case, the Greek mu and 'u' read as the micro sign."""
+    return unit.strip().lower().replace("μ", "µ")
+
+
 def _unit_scale(name: str, table: dict[str, float]) -> float | None:
     m = _UNIT_IN_NAME.search(name)
     if m:
-        return table.get(m.group(1).lower())
+        return table.get(_unit_key(m.group(1)))
     return None
 
 
@@ -104,9 +110,10 @@ def _column_unit(header: str, table: dict[str, float], what: str, known: str, na
     m = _UNIT_IN_NAME.search(header)
     if not m:
         return 1.0
-    scale = table.get(m.group(1).lower())
+    scale = table.get(_unit_key(m.group(1)))
     if scale is None:
-        raise InputError(f"{name}: unknown {what} unit {m.group(1)!r} in column {header!r} (known: {known})")
+        raise InputError(f"{name}: unknown {what} unit {m.group(1)[:20]!r} in column {header[:40]!r} "
+                         f"(known: {known})")
     return scale
 
 

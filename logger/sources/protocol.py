@@ -117,9 +117,12 @@ def mtime_start(path_or_file: PathOrFile, duration_s: float) -> tuple[_dt.dateti
             mtime = os.path.getmtime(path_or_file)
         except OSError:
             mtime = None
-        if mtime is not None:
-            end = _dt.datetime.fromtimestamp(mtime, tz=_dt.timezone.utc)
-            return end - _dt.timedelta(seconds=duration_s), START_FROM_MTIME
+        try:
+            end = _dt.datetime.fromtimestamp(mtime, tz=_dt.timezone.utc) if mtime is not None else None
+            if end is not None and 1900 <= end.year <= 2999:  # else a placeholder time, not a date
+                return end - _dt.timedelta(seconds=duration_s), START_FROM_MTIME
+        except (OverflowError, OSError, ValueError):
+            pass
     return _dt.datetime.now(tz=_dt.timezone.utc), START_FROM_NOW
 
 

@@ -14,6 +14,8 @@ from dataclasses import dataclass
 
 from coilshift.logger.errors import InputError
 
+#: years a recording's timestamp may carry; outside them it is a placeholder and is not used
+PLAUSIBLE_YEARS = (1900, 2999)
 #: bytes of a ``bext`` body up to the end of OriginationTime (EBU Tech 3285)
 _BEXT_TIME_END = 338
 
@@ -27,11 +29,23 @@ class RiffInfo:
     data_declared : bytes the data chunk header promises (None when unknown)
     data_present : bytes of the data chunk actually in the file (None when unknown)
     bext_start : the BWF origination time, UTC (None without a readable ``bext`` chunk)
+    data_offset : where the samples start in the file (None when unknown)
+    wave_format : ``(format tag, channels, sample rate, bits per sample, block align)`` of the
+        ``fmt`` chunk, the tag of WAVE_FORMAT_EXTENSIBLE replaced by its sub-format's (None when
+        unknown)
     """
 
     data_declared: int | None
     data_present: int | None
     bext_start: _dt.datetime | None
+    data_offset: int | None = None
+    wave_format: tuple[int, int, int, int, int] | None = None
+
+    @property
+    def unfinished(self) -> bool:
+        """The writer never filled in the data size (0) though samples follow: a recorder that
+        was stopped before it could finish the header."""
+        return self.data_declared == 0 and bool(self.data_present) and self.wave_format is not None
 
 
 def check_riff(head: bytes, total_size: int, name: str) -> RiffInfo:
@@ -54,6 +68,7 @@ def check_riff(head: bytes, total_size: int, name: str) -> RiffInfo:
     pos = 12
     bext = None
     have_fmt = False
+    wave_format = None
     while pos + 8 <= len(head):
         cid = head[pos:pos + 4]
         (size,) = struct.unpack("<I", head[pos + 4:pos + 8])
@@ -62,6 +77,7 @@ def check_riff(head: bytes, total_size: int, name: str) -> RiffInfo:
             have_fmt = True
             if body + 16 <= len(head):
                 check_wave_format(head[body:body + 16], name)
+                wave_format = _format_fields(head[body:body + min(size, 40)])
         elif cid == b"bext" and body + _BEXT_TIME_END <= len(head):
             bext = parse_bext_time(head[body:body + _BEXT_TIME_END])
         elif cid == b"data":
@@ -71,11 +87,20 @@ def check_riff(head: bytes, total_size: int, name: str) -> RiffInfo:
             if size not in (0, 0xFFFFFFFF) and size > present:
                 raise InputError(f"{name}: truncated WAV: the header promises {size} data bytes, "
                                  f"the file holds {present}")
-            return RiffInfo(size, present, bext)
+            return RiffInfo(size, present, bext, body, wave_format)
         pos = body + size + (size & 1)  # chunks are padded to even length
     if pos + 8 > total_size:
         raise InputError(f"{name}: truncated WAV header (no data chunk)")
     return RiffInfo(None, None, bext)  # data chunk beyond the first bytes read: leave to libsndfile
+
+
+def _format_fields(fmt: bytes) -> tuple[int, int, int, int, int]:
+    """(tag, channels, rate, bits, block align) of a ``fmt`` body; an EXTENSIBLE tag is replaced by
+    the first two bytes of its SubFormat GUID (Microsoft WAVEFORMATEXTENSIBLE: the plain tag)."""
+    tag, channels, rate, _byte_rate, block_align, bits = struct.unpack("<HHIIHH", fmt[:16])
+    if tag == 0xFFFE and len(fmt) >= 26:
+        (tag,) = struct.unpack("<H", fmt[24:26])
+    return tag, channels, rate, bits, block_align
 
 
 def check_wave_format(fmt: bytes, name: str) -> None:
@@ -115,4 +140,6 @@ def parse_bext_time(body: bytes) -> _dt.datetime | None:
         local = _dt.datetime(y, mo, d, h, mi, s)
     except (UnicodeDecodeError, ValueError):
         return None
+    if not PLAUSIBLE_YEARS[0] <= y <= PLAUSIBLE_YEARS[1]:
+        return None  # year 1 or 9999: a placeholder, not a date (and one the clock arithmetic overflows)
     return local.astimezone(_dt.timezone.utc)

@@ -37,6 +37,17 @@ def _full_scale_v(peak_v: float) -> float:
     return 10.0 * decade  # pragma: no cover
 
 
+def _text_encoding(head: bytes, whole: bool) -> str:
+    """``"utf-8-sig"`` when the sample of first bytes is UTF-8 (a multi-byte character cut at its
+    end allowed, unless it is the whole file), else ``"latin-1"``."""
+    try:
+        head.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        if whole or exc.start < len(head) - 3:
+            return "latin-1"
+    return "utf-8-sig"
+
+
 class ScopeCsvSource:
     """An oscilloscope waveform exported as CSV/text: a time column and voltage column(s).
 
@@ -68,8 +79,10 @@ class ScopeCsvSource:
                 at_eof = not fh.read(1)
         except OSError as exc:
             raise InputError(f"{self.name}: cannot read ({exc.strerror})") from None
-        text = head.decode("latin-1")  # latin-1 never fails; data rows are plain ASCII anyway
-        lines = text.splitlines()
+        # UTF-8 first (a 'µV' header is two bytes there); an export that is not UTF-8 is Latin-1
+        # (where 'µ' is one byte), which never fails to decode
+        self.encoding = _text_encoding(head, at_eof)
+        lines = head.decode(self.encoding, errors="replace").splitlines()
         if not at_eof and lines:
             lines = lines[:-1]  # the last line of the sample may be cut
         self.layout = detect_csv_layout(lines, self.name)
@@ -90,7 +103,8 @@ class ScopeCsvSource:
         vcol = lay.volt_cols[self.channel]
         kw = dict(header=None, skiprows=lay.data_line - 1, usecols=[lay.time_col, vcol],
                   names=list(range(lay.n_fields)), chunksize=_CSV_CHUNK_ROWS, decimal=lay.decimal,
-                  encoding="latin-1", skip_blank_lines=False, na_filter=False, engine="c")
+                  encoding=self.encoding, encoding_errors="replace", skip_blank_lines=False, na_filter=False,
+                  engine="c")
         if lay.sep is None:
             kw["sep"] = r"\s+"
         else:
@@ -220,6 +234,7 @@ class ScopeCsvSource:
             "data_starts_at_line": lay.data_line,
             "separator": {None: "whitespace", "\t": "tab"}.get(lay.sep, lay.sep),
             "decimal_mark": lay.decimal,
+            "text_encoding": "UTF-8" if self.encoding.startswith("utf") else "Latin-1",
             "time_column": {"index": lay.time_col, "name": lay.names[lay.time_col],
                             "to_seconds": lay.time_scale},
             "voltage_columns": [lay.names[j] or f"field {j}" for j in lay.volt_cols],

@@ -11,10 +11,11 @@ from pathlib import Path
 
 from coilshift.logger.errors import InputError
 from coilshift.logger.sources.protocol import PathOrFile, display_name, is_path
+from coilshift.logger.textfile import require_regular_file
 
 AUDIO_EXTENSIONS = {".wav": "WAV", ".wave": "WAV", ".bwf": "WAV", ".rf64": "WAV", ".w64": "W64",
                     ".flac": "FLAC", ".aif": "AIFF", ".aiff": "AIFF", ".aifc": "AIFF",
-                    ".ogg": "OGG", ".oga": "OGG", ".au": "AU", ".snd": "AU", ".caf": "CAF"}
+                    ".ogg": "OGG", ".oga": "OGG", ".au": "AU", ".snd": "AU", ".caf": "CAF", ".mp3": "MP3"}
 TEXT_EXTENSIONS = {".csv", ".txt", ".tsv", ".dat"}
 # first bytes of the containers soundfile reads; the WAV family shares a check
 _MAGIC = (
@@ -33,6 +34,7 @@ def _read_head(path_or_file: PathOrFile, name: str) -> tuple[bytes, str]:
             raise InputError(f"{name}: no such file")
         if path.is_dir():
             raise InputError(f"{name}: is a folder, not a recording")
+        require_regular_file(path, "recording")  # a pipe or device would block or never end
         try:
             with open(path, "rb") as fh:
                 head = fh.read(_SNIFF_BYTES)
@@ -60,7 +62,7 @@ def sniff_format(path_or_file: PathOrFile) -> str:
     head, ext = _read_head(path_or_file, name)
     if not head:
         raise InputError(f"{name}: empty file")
-    by_magic = next((fmt for magic, fmt in _MAGIC if head.startswith(magic)), None)
+    by_magic = next((fmt for magic, fmt in _MAGIC if head.startswith(magic)), None) or _mp3_magic(head)
     if by_magic == "WAV" and head[8:12] not in (b"WAVE",):
         by_magic = None  # RIFF but not a WAVE form (AVI, WebP, ...)
     if ext in AUDIO_EXTENSIONS:
@@ -83,6 +85,16 @@ def sniff_format(path_or_file: PathOrFile) -> str:
     if _looks_like_text(head):
         return "CSV"
     raise InputError(f"{name}: unrecognised file format (neither audio nor a text CSV export)")
+
+
+def _mp3_magic(head: bytes) -> str | None:
+    """``"MP3"`` for an ID3v2 tag or an MPEG audio frame header (11 sync bits set, layer III:
+    ISO/IEC 11172-3), else None."""
+    if head.startswith(b"ID3"):
+        return "MP3"
+    if len(head) >= 2 and head[0] == 0xFF and (head[1] & 0xE0) == 0xE0 and (head[1] & 0x06) == 0x02:
+        return "MP3"
+    return None
 
 
 def _looks_like_text(head: bytes) -> bool:

@@ -10,7 +10,10 @@ from __future__ import annotations
 import math
 
 from coilshift.logger.errors import InputError, setting
+from coilshift.logger.waiting import call_with_timeout
 
+#: seconds to wait for each of stopping, aborting and closing the stream
+CLOSE_TIMEOUT_S = 1.5
 #: what to install when PortAudio itself is missing (the Python package is a dependency)
 PORTAUDIO_HINT = ("the PortAudio library is not installed: install it with your package manager "
                   "(Debian/Ubuntu: apt install libportaudio2; Fedora: dnf install portaudio; "
@@ -125,6 +128,7 @@ class SoundcardSource:
         self.sample_rate_hz = self.requested_rate_hz
         self._stream = None
         self._closing = False
+        self.abandoned = False  # the stream would not stop (a hung driver) and was left behind
         self.input_latency_s: float | None = None
 
     def open(self, deliver, fail) -> None:
@@ -156,17 +160,34 @@ class SoundcardSource:
         self.input_latency_s = float(self._stream.latency)  # what the stream really runs with
 
     def close(self) -> None:
+        """Stop and close the stream, waiting at most :data:`CLOSE_TIMEOUT_S` for each step.
+
+        A driver whose device has died can block in stop() for many seconds or for ever: then
+        the stream is aborted (pending buffers dropped), and if even that blocks it is abandoned
+        (``abandoned`` is set) and PortAudio is not shut down at exit, which would block too.
+        """
         self._closing = True
         stream, self._stream = self._stream, None
         if stream is None:
             return
+        # the device may already be gone (errors ignored); closing is still required
+        if not call_with_timeout(stream.stop, CLOSE_TIMEOUT_S, name="coilshift-stream-stop")[0]:
+            if not call_with_timeout(stream.abort, CLOSE_TIMEOUT_S, name="coilshift-stream-abort")[0]:
+                self.abandoned = True
+                self._skip_portaudio_exit()
+                return
+        call_with_timeout(stream.close, CLOSE_TIMEOUT_S, name="coilshift-stream-close")
+
+    @staticmethod
+    def _skip_portaudio_exit() -> None:
+        # sounddevice stops and terminates PortAudio at exit; with a hung stream that never returns
         try:
-            stream.stop()
-        except Exception:  # the device may already be gone; closing is still required
-            pass
-        try:
-            stream.close()
-        except Exception:
+            import atexit
+
+            import sounddevice
+
+            atexit.unregister(sounddevice._exit_handler)
+        except Exception:  # an older or newer sounddevice without it: nothing to undo
             pass
 
     def describe(self) -> dict:

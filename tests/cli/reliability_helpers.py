@@ -85,3 +85,49 @@ def write_small_run(run_dir, n=3000, hop=0.02, f0=20000.0, with_markers=True) ->
                                                 Marker(third, 2 * third, "coin", 10.0),
                                                 Marker(2 * third, 3 * third, BASELINE, math.nan)]))
     return run
+
+
+#: runs coilshift on a terminal of its own (``os.forkpty``: the terminal is the command's
+#: controlling terminal, in a session of its own), so the test process never owns a terminal.
+#: argv: WAIT_FOR ACTION COILSHIFT-ARGS...; WAIT_FOR is text the command prints or a path that
+#: must exist; ACTION is "ctrl-c" (type Ctrl-C) or "close" (close the terminal, 1 s later).
+#: Prints what the command printed; exits with the command's status.
+ON_A_TERMINAL = r"""
+import os, select, sys, time
+wait_for, action, args = sys.argv[1], sys.argv[2], sys.argv[3:]
+pid, fd = os.forkpty()
+if pid == 0:
+    os.execv(sys.executable, [sys.executable, "-m", "coilshift.cli.main", *args])
+seen, deadline = b"", time.monotonic() + 30
+def ready():
+    return wait_for.encode() in seen if not wait_for.startswith("/") else os.path.exists(wait_for)
+while not ready() and time.monotonic() < deadline:
+    if select.select([fd], [], [], 0.1)[0]:
+        try:
+            seen += os.read(fd, 65536)
+        except OSError:
+            break
+if action == "ctrl-c":
+    os.write(fd, b"\x03")
+else:
+    time.sleep(1.0)
+    os.close(fd)
+while action == "ctrl-c":
+    try:
+        chunk = os.read(fd, 65536)
+    except OSError:
+        break
+    if not chunk:
+        break
+    seen += chunk
+_, status = os.waitpid(pid, 0)
+sys.stdout.write(seen.decode("utf-8", "replace"))
+sys.exit(os.waitstatus_to_exitcode(status))
+"""
+
+
+def on_a_terminal(wait_for, action: str, *args, env=None, timeout=60):
+    """Run coilshift ``args`` on a terminal of its own; see :data:`ON_A_TERMINAL`."""
+    env = {**{k: v for k, v in os.environ.items() if k != "COILSHIFT_DEBUG"}, **(env or {})}
+    return subprocess.run([sys.executable, "-c", ON_A_TERMINAL, str(wait_for), action, *map(str, args)],
+                          capture_output=True, text=True, env=env, timeout=timeout)

@@ -12,12 +12,13 @@ from __future__ import annotations
 
 import json
 import shutil
+import tempfile
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 
 import numpy as np
 import pytest
-from reliability_helpers import cli, one_line_error, snapshot, tone, wav16, write_small_run
+from reliability_helpers import cli, on_a_terminal, one_line_error, snapshot, tone, wav16, write_small_run
 
 SAMPLE_SCRIPT = Path(__file__).parents[2] / "sample_data" / "calibration.json"
 COIL = {"turns": 20, "inner_diameter_mm": 100, "length_mm": 10, "awg": 26, "cap_nf": 10}
@@ -141,3 +142,123 @@ def test_force_never_follows_into_a_file(inputs, tmp_path):
     assert "precious.csv" in line
     assert victim.read_bytes() == before
     shutil.rmtree(tmp_path / "cfg", ignore_errors=True)
+
+
+# --------------------------------------------------------------------------- round two
+
+def _old_capture(out: Path) -> dict:
+    out.mkdir()
+    (out / "log.csv").write_text("t_s,freq_hz\n0.0,1000.0\n")
+    (out / "run.json").write_text('{"status": "complete"}\n')
+    (out / "markers.csv").write_text("start_s,end_s,target,distance_mm\n")
+    (out / "audio.wav").write_bytes(b"RIFF an older capture's audio")
+    (out / "keep.txt").write_text("mine\n")
+    return snapshot(out)
+
+
+def _shown_config(tmp_path: Path) -> dict:
+    cfg = tmp_path / "cfg" / "coilshift"
+    cfg.mkdir(parents=True)
+    (cfg / "state.json").write_text(json.dumps({"wiring_caution_shown": True}))
+    return {"XDG_CONFIG_HOME": str(tmp_path / "cfg")}
+
+
+@pytest.mark.parametrize("argv", [
+    # the tracker refuses the rate once the input is open (an 85 ms frame is 17 samples at 200 Hz)
+    ("capture", "-o", "{out}", "--force", "--synthetic", "1000", "--rate", "200", "--seconds", "1", "--no-view"),
+    ("capture", "-o", "{out}", "--force", "--synthetic", "1000", "--rate", "200", "--save-audio", "--no-view"),
+    ("calibrate", "-o", "{out}", "--force", "--target", "coin", "--distances", "10", "--synthetic", "1000",
+     "--rate", "200"),
+], ids=["capture", "capture-save-audio", "calibrate"])
+def test_a_refused_start_leaves_the_old_run_whole(tmp_path, argv):
+    out = tmp_path / "out"
+    before = _old_capture(out)
+    res = cli(*[str(a).replace("{out}", str(out)) for a in argv], env=_shown_config(tmp_path))
+    one_line_error(res)
+    assert snapshot(out) == before
+    assert sorted(p.name for p in out.iterdir()) == sorted(before)  # no hidden set-aside files either
+
+
+def test_a_locked_run_folder_is_refused_before_the_input_opens(tmp_path):
+    from coilshift.logger.runfolder.locking import FolderLock
+
+    out = tmp_path / "out"
+    before = _old_capture(out)
+    lock = FolderLock(out)  # another coilshift command is writing there
+    try:
+        res = cli("capture", "-o", out, "--force", "--synthetic", "1000", "--rate", "8000", "--seconds", "1",
+                  "--no-view", env=_shown_config(tmp_path))
+    finally:
+        lock.release()
+    assert "another coilshift command" in one_line_error(res)
+    assert snapshot(out) == before
+
+
+@pytest.mark.slow
+def test_ctrl_c_at_the_first_run_caution_leaves_the_old_run_whole(tmp_path):
+    out = tmp_path / "out"
+    before = _old_capture(out)
+    res = on_a_terminal("Press Enter", "ctrl-c", "capture", "-o", out, "--force", "--synthetic", "1000",
+                        "--rate", "8000", env={"XDG_CONFIG_HOME": str(tmp_path / "fresh")})  # never shown yet
+    assert res.returncode == 2 and "cancelled" in res.stdout, (res.returncode, res.stdout, res.stderr)
+    assert snapshot(out) == before
+
+
+OUTPUT_COMMANDS = {
+    "analyze": (("analyze", "{run}", "--bootstrap", "20", "-o", "{out}", "--force"), 2),
+    "stability": (("stability", "{run}", "-o", "{out}", "--force"), 2),
+    "target": (("target", "--coil", "{coil}", "--target", "copper:diameter_mm=20", "-o", "{out}", "--force"), 2),
+    "simulate": (("simulate", "{script}", "-o", "{out}", "--force"), 1),
+    "demo": (("demo", "-o", "{out}", "--force", "--json"), 3),
+}
+
+
+@pytest.mark.parametrize("name", list(OUTPUT_COMMANDS))
+def test_an_output_folder_interrupted_while_written_is_left_as_it_was(inputs, tmp_path, monkeypatch, capsys, name):
+    # Ctrl-C (or SIGTERM, which the command line turns into the same) after a few outputs are
+    # written: the folder keeps exactly what it had, old outputs and the user's files
+    from coilshift.cli.main import main
+    from coilshift.logger.runfolder import atomic
+
+    argv, after_writes = OUTPUT_COMMANDS[name]
+    out = tmp_path / "out"
+    _prefill(out, ("report.html", "stability.json", "prediction.csv", "truth.json", "summary.json"))
+    before = snapshot(out)
+    calls = []
+
+    class Interrupting:  # every finished output starts with a temp file from mkstemp (atomic.py)
+        def __getattr__(self, name):
+            return getattr(tempfile, name)
+
+        @staticmethod
+        def mkstemp(*args, **kwargs):
+            calls.append(kwargs.get("prefix"))
+            if len(calls) > after_writes:
+                raise KeyboardInterrupt
+            return tempfile.mkstemp(*args, **kwargs)
+
+    # the module's own name lookup, not a function object other modules may have imported
+    monkeypatch.setattr(atomic, "tempfile", Interrupting())
+    d = inputs
+    args = [str(a).replace("{run}", str(d / "run")).replace("{coil}", str(d / "coil.json"))
+            .replace("{script}", str(d / "script.json")).replace("{out}", str(out)) for a in argv]
+    assert main(args) == 130
+    capsys.readouterr()
+    assert len(calls) > after_writes, "the command wrote less than expected: the test proves nothing"
+    assert snapshot(out) == before
+    assert not [p for p in tmp_path.iterdir() if ".building-" in p.name]
+
+
+def test_analyze_names_every_run_uniquely(inputs, tmp_path):
+    # a/run, b/run and c/run-2: each keeps its own outputs and its own column in the comparison
+    runs = []
+    for parent, name in (("a", "run"), ("b", "run"), ("c", "run-2")):
+        runs.append(tmp_path / parent / name)
+        shutil.copytree(inputs / "run", runs[-1])
+    out = tmp_path / "out"
+    res = cli("analyze", *runs, "--bootstrap", "20", "-o", out, "--json")
+    assert res.returncode == 0, res.stderr
+    names = [r["run"] for r in json.loads(res.stdout)["runs"]]
+    assert len(set(names)) == 3 and names[0] == "run" and names[2] == "run-2"
+    assert json.loads((out / "comparison.json").read_text())["runs"] == names
+    assert {p.name for p in out.iterdir() if p.is_dir()} == set(names)

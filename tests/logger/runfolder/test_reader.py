@@ -102,3 +102,65 @@ def test_reader_never_modifies_the_run(tmp_path):
     before = {p.name: p.read_bytes() for p in run.iterdir()}
     read_log(run)
     assert {p.name: p.read_bytes() for p in run.iterdir()} == before
+
+
+# --------------------------------------------------------------------------- round two
+
+PLAIN = "t_s,freq_hz,shift_hz\n0.02,1000.25,0.25\n0.04,1000.5,0.5\n0.06,999.75,-0.25\n"
+
+
+@pytest.mark.parametrize("text", [
+    '"t_s","freq_hz","shift_hz"\n0.02,1000.25,0.25\n0.04,1000.5,0.5\n0.06,999.75,-0.25\n',  # quoted names
+    't_s;freq_hz;shift_hz\n0,02;1000,25;0,25\n0,04;1000,5;0,5\n0,06;999,75;-0,25\n',  # ';' and decimal ','
+    't_s;freq_hz;shift_hz\n0.02;1000.25;0.25\n0.04;1000.5;0.5\n0.06;999.75;-0.25\n',  # ';' and '.'
+    '"t_s";"freq_hz";"shift_hz"\r\n"0,02";"1000,25";"0,25"\r\n"0,04";"1000,5";"0,5"\r\n"0,06";"999,75";"-0,25"\r\n',
+    't_s\tfreq_hz\tshift_hz\n0.02\t1000.25\t0.25\n0.04\t1000.5\t0.5\n0.06\t999.75\t-0.25\n',  # tab-separated
+    '\ufeff t_s , freq_hz , shift_hz\n0.02, 1000.25, 0.25\n0.04, 1000.5, 0.5\n0.06, 999.75, -0.25\n',  # BOM, spaces
+])
+def test_a_log_saved_by_a_spreadsheet_reads_like_the_plain_one(tmp_path, text):
+    plain, saved = tmp_path / "plain.csv", tmp_path / "saved.csv"
+    plain.write_text(PLAIN)
+    saved.write_bytes(text.encode("utf-8"))
+    a, b = read_log(plain), read_log(saved)
+    for col in ("t_s", "freq_hz", "shift_hz"):
+        np.testing.assert_array_equal(b.table[col].to_numpy(), a.table[col].to_numpy())
+
+
+def _window_run(run_dir, finished: bool):
+    """A live-style run: rows of two baseline windows written before their baselines were known."""
+    from coilshift.logger.pipeline.stage import LogFeed
+
+    run = prepare_run_dir(run_dir)
+    w = RunWriter(run, {"start_utc": START, "baseline": {"method": "pending", "window_s": 1.0, "pending": True}})
+    feed = LogFeed(w, window_s=1.0)
+    t = np.round(np.arange(1, 301) * 0.02, 6)
+    f = np.where(t < 3.0, 1000.0, 1004.0) + 0.001 * np.sin(t)
+    frames = FrameTable(t, f, np.full(t.size, -6.0), np.full(t.size, 40.0))
+    for i in range(0, 149, 10):  # 0 .. 2.98 s: the start window closes after 1 s
+        feed.emit(frames.select(slice(i, min(i + 10, 149))))
+        feed.flush()
+    feed.rezero(2.99)  # (a re-zero comes after the frames already tracked)
+    for i in range(149, 300, 10):  # the re-zero window 2.99 .. 3.99 s, then rows after it
+        feed.emit(frames.select(slice(i, i + 10)))
+        feed.flush()
+    if finished:
+        feed.finish()
+        w.close({"baselines": feed.baselines})
+    else:  # killed: run.json as it was last written, the log without its end
+        w._fh.close()
+    return run, t, f
+
+
+@pytest.mark.parametrize("finished", [True, False], ids=["complete", "crashed"])
+def test_rows_of_a_baseline_window_get_their_shift_from_run_json(tmp_path, finished):
+    run, t, f = _window_run(tmp_path / "run", finished)
+    raw = np.genfromtxt(run / "log.csv", delimiter=",", names=True, dtype=None, encoding="utf-8")
+    in_window = ((t >= 0) & (t <= 1.0)) | ((t >= 2.99) & (t <= 3.99))
+    assert np.isnan(raw["shift_hz"][in_window]).all()  # written before the baseline was known
+    assert not np.isnan(raw["shift_hz"][~in_window]).any()
+    log = read_log(run)
+    # the reference: each row's frequency minus the median of its own window (numpy, by hand)
+    first = np.median(f[t <= 1.0])
+    second = np.median(f[(t >= 2.99) & (t <= 3.99)])
+    want = np.where(t < 2.99, f - first, f - second)
+    np.testing.assert_allclose(log.table["shift_hz"].to_numpy(), want, atol=1e-6)  # 6 decimals in the file

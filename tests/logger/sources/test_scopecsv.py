@@ -137,3 +137,39 @@ def test_layout_detection_tek_style_columns():
 def test_csv_needs_a_path():
     with pytest.raises(InputError, match="given as a path"):
         open_source(io.BytesIO(b"t,v\n0,1\n1,2\n"))
+
+
+# --------------------------------------------------------------------------- round two: units in UTF-8
+
+@pytest.mark.parametrize("time_unit, volt_unit, encoding", [
+    ("\u00b5s", "\u00b5V", "utf-8"),   # MICRO SIGN
+    ("\u03bcs", "\u03bcV", "utf-8"),   # GREEK SMALL LETTER MU
+    ("\u00b5s", "\u00b5V", "utf-8-sig"),  # with a byte-order mark
+    ("\u00b5s", "\u00b5V", "latin-1"),  # one byte 0xB5
+])
+def test_micro_units_are_read_as_written(tmp_path, time_unit, volt_unit, encoding):
+    # the same export written with "us"/"uV" is the reference: the unit's spelling and the file's
+    # encoding must not change the sample rate or the voltages
+    n, dt = 400, 1e-5
+    v = 2.5 * np.sin(2 * np.pi * 1000 * np.arange(n) * dt)
+    rows = "".join(f"{i * dt * 1e6:.3f},{1e6 * v[i]:.1f}\n" for i in range(n))
+    ref = tmp_path / "ascii.csv"
+    ref.write_text("Time (us),CH1 (uV)\n" + rows)
+    p = tmp_path / "micro.csv"
+    p.write_bytes(f"Time ({time_unit}),CH1 ({volt_unit})\n{rows}".encode(encoding))
+    a, b = open_source(ref), open_source(p)
+    assert b.sample_rate_hz == pytest.approx(a.sample_rate_hz, rel=1e-12) == pytest.approx(1e5, rel=1e-6)
+    assert b.full_scale_v == a.full_scale_v == 5.0
+    np.testing.assert_array_equal(np.concatenate(list(b.blocks(128))), np.concatenate(list(a.blocks(128))))
+
+
+@pytest.mark.parametrize("header, unit", [("Time (s),CH1 (\u00b5furlong)", "\u00b5furlong"),
+                                          ("Time (s),CH1 (V/div)", "V/div"),
+                                          ("Time (\u00b5fortnight),CH1 (V)", "\u00b5fortnight")])
+def test_unknown_units_are_refused_by_name(tmp_path, header, unit):
+    text, _ = _scope_text(header=header, preamble=())
+    p = tmp_path / "odd.csv"
+    p.write_text(text, encoding="utf-8")
+    with pytest.raises(InputError) as exc:
+        open_source(p)
+    assert unit in str(exc.value) and "odd.csv" in str(exc.value)

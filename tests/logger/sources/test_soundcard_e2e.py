@@ -10,6 +10,7 @@ Vol. 1, ex. 3.14), far below the 200-400 Hz steps between tones.
 
 from __future__ import annotations
 
+import json
 import math
 import os
 import signal
@@ -122,3 +123,74 @@ def test_capture_killed_mid_run_keeps_a_readable_log(virtual_audio, tmp_path):
     assert tone.sum() >= 50
     assert np.all(np.abs(log.freq_hz[tone] - 1500.0) < tol_hz())
     assert np.all(np.diff(log.t_s) > 0)
+
+
+@pytest.fixture
+def private_sound_server(tmp_path):
+    """A PulseAudio server of this test alone (its own runtime folder), which the test may freeze.
+
+    Yields the environment that points clients at it and the server's pid; the server is
+    resumed and stopped afterwards.
+    """
+    import shutil
+
+    if shutil.which("pulseaudio") is None or shutil.which("pactl") is None:
+        pytest.skip("PulseAudio is not installed: no private sound server")
+    runtime = tmp_path / "xdg"
+    runtime.mkdir(mode=0o700)
+    env = dict(os.environ, XDG_RUNTIME_DIR=str(runtime), PULSE_RUNTIME_PATH=str(runtime / "pulse"),
+               XDG_CONFIG_HOME=str(tmp_path / "cfg"))
+    env.pop("PULSE_SERVER", None)
+    (tmp_path / "cfg" / "coilshift").mkdir(parents=True)  # the first-run caution counts as shown
+    (tmp_path / "cfg" / "coilshift" / "state.json").write_text('{"wiring_caution_shown": true}')
+    r = subprocess.run(["pulseaudio", "--daemonize=true", "--exit-idle-time=-1", "-n",
+                        "--load=module-null-sink sink_name=frozen", "--load=module-native-protocol-unix"],
+                       env=env, capture_output=True, text=True, timeout=20)
+    pid_file = runtime / "pulse" / "pid"
+    deadline = time.monotonic() + 10
+    while not pid_file.exists() and time.monotonic() < deadline:
+        time.sleep(0.05)
+    if not pid_file.exists():
+        pytest.skip(f"the private sound server did not start: {r.stderr.strip()[-200:]}")
+    pid = int(pid_file.read_text().split()[0])
+    subprocess.run(["pactl", "set-default-source", "frozen.monitor"], env=env, capture_output=True, timeout=10)
+    try:
+        yield env, pid
+    finally:
+        for sig in (signal.SIGCONT, signal.SIGTERM):
+            try:
+                os.kill(pid, sig)
+            except ProcessLookupError:
+                pass
+
+
+@pytest.mark.slow
+def test_a_frozen_sound_server_ends_the_capture_within_seconds(private_sound_server, tmp_path):
+    # the input stops delivering and the driver's stop() never returns: capture must still
+    # record the fault, say so in one line and exit non-zero, instead of hanging for ever
+    env, server = private_sound_server
+    run_dir = tmp_path / "run"
+    proc = subprocess.Popen([sys.executable, "-m", "coilshift.cli.main", "capture", "--device", "pulse",
+                             "--rate", str(FS), "--no-view", "-o", str(run_dir)],
+                            env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
+    try:
+        deadline = time.monotonic() + 20
+        while not ((run_dir / "log.csv").exists() and (run_dir / "log.csv").stat().st_size > 60 * 20):
+            assert proc.poll() is None, proc.communicate()[1]
+            assert time.monotonic() < deadline, "no rows from the private sound server"
+            time.sleep(0.05)
+        os.kill(server, signal.SIGSTOP)
+        frozen = time.monotonic()
+        _, err = proc.communicate(timeout=30)
+        took = time.monotonic() - frozen
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+            proc.communicate()
+    # 3 s without audio to notice it, 1.5 s each to stop and then abort the stream, some slack
+    assert took < 3.0 + 2 * 1.5 + 3.0, f"took {took:.1f} s"
+    lines = err.splitlines()
+    assert proc.returncode == 1 and len(lines) == 1 and "input stopped" in lines[0], lines
+    meta = json.loads((run_dir / "run.json").read_text())
+    assert meta["status"] == "device_error"
+    assert read_log(run_dir).t_s[-1] > 0.2
