@@ -335,14 +335,19 @@ def test_track_force_ended_by_any_signal_while_writing_puts_the_old_run_back(tmp
     # the class: Ctrl-C, SIGTERM (kill, a service manager) and SIGHUP (a closed terminal) alike
     runs = {sig: tmp_path / sig.name for sig in SIGNALS}
     before = {sig: _old_run(run) for sig, run in runs.items()}
-    procs = {sig: _popen("track", long_recording, "-o", run, "--force", "--quiet", "--hop-ms", "1",
-                         stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
-             for sig, run in runs.items()}
-    for sig, proc in procs.items():
-        _wait_for(lambda: _setting_aside(runs[sig]), proc, what=f"track ({sig.name})")
-        proc.send_signal(sig)
-    for sig, proc in procs.items():
-        _, err = proc.communicate(timeout=60)
+    # one at a time: started together, the later ones could finish writing while the first is
+    # being waited for, and the signal would come too late
+    for sig, run in runs.items():
+        proc = _popen("track", long_recording, "-o", run, "--force", "--quiet", "--hop-ms", "1",
+                      stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
+        try:
+            _wait_for(lambda: _setting_aside(run), proc, what=f"track ({sig.name})")
+            proc.send_signal(sig)
+            _, err = proc.communicate(timeout=60)
+        finally:
+            if proc.poll() is None:
+                proc.kill()
+                proc.communicate()
         assert proc.returncode == 128 + sig, (sig.name, proc.returncode, err)
         lines = err.splitlines()
         assert len(lines) == 1 and "Traceback" not in err, lines
