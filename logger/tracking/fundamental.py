@@ -8,7 +8,11 @@ harmonic k of f0 at ``|k f0 - j fs|``). A hypothesis needs a line at ``f`` withi
 SUBHARMONIC_RANGE_DB of ``fp`` (FOLDED_RANGE_DB for the folded family, considered only in frames
 that show folding), and at least half of its harmonics h = 1..m must show as lines in that range,
 each located (Grandke) within SELECT_LOCATION_BINS plus four of its standard deviations of where
-the hypothesis puts it.
+the hypothesis puts it. Two lines alone, ``fp`` and one at ``fp / m``, are as well explained by
+two unrelated tones (an interferer, a second oscillator) as by one waveform: a waveform with a
+strong harmonic m has others around it (a pulse train's |sin(pi k d)| / k envelope is smooth), so
+one more line among h = 2..m-1 and m+1..2m is needed, wherever one of them could be seen (below
+fs/2, or anywhere in a frame that shows folding).
 
 Without an anti-alias filter the spectrum is dense with folded harmonics of ``fp`` itself, and
 some of them sit by chance where a subharmonic's harmonics would be. A supporting line counts
@@ -208,8 +212,14 @@ def _supported(plan: Plan, spec: _Lines, f_all, base, hyps):
     present, loc, top = _located(plan, spec.searchable, spec.power, spec.idx, pos, spec.thr, spec.noise_bin)
     d_hyp = np.abs(loc - pos)
     support = present & ~_folded_explains(plan, base, spec.aliased, spec.p_peak, loc, d_hyp, top, present)
-    counts = np.add.reduceat(support, starts, axis=1, dtype=np.int64) + 1  # + fp itself
-    return support[:, starts] & (counts >= plan.hyp_need[None, hyps])
+    above = plan.sup_above[sel][None, :]
+    counts = np.add.reduceat(support & ~above, starts, axis=1, dtype=np.int64) + 1  # + fp itself
+    # one more line of the waveform, among h = 2..m-1 and m+1..2m, where one could be seen
+    other = plan.sup_h[sel][None, :] > 1
+    seen = (f_all[:, plan.sup_hyp[sel]] * plan.sup_h[None, sel] <= plan.nbins - 4) | spec.aliased[:, None]
+    extra = np.add.reduceat(support & other, starts, axis=1, dtype=np.int64)
+    could = np.add.reduceat(seen & other, starts, axis=1, dtype=np.int64)
+    return support[:, starts] & (counts >= plan.hyp_need[None, hyps]) & ((extra > 0) | (could == 0))
 
 
 def _folded_explains(plan: Plan, base, aliased, p_peak, loc, d_hyp, top, present):

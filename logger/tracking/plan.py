@@ -80,7 +80,9 @@ class Plan:
         ``m`` = 1..MAX_HARMONIC_SEARCH is the harmonic number ``fp`` would have; ``c = 0`` (``fp``
         is harmonic m as it is) or ``c = 1..m/2`` with ``s = +-1`` (harmonic m of ``f`` lies
         above fs/2 and folds onto ``fp``). Column 0 is ``fp`` itself. Each hypothesis is
-        supported by its harmonics h = 1..m-1 (flattened: ``sup_hyp``, ``sup_h``).
+        supported by its harmonics h = 1..m-1, and needs a line of its waveform besides h = 1 and
+        ``fp`` among h = 2..m-1 and m+1..2m (flattened: ``sup_hyp``, ``sup_h``; ``sup_above``
+        marks h > m).
         """
         ms, cs, ss = [1], [0], [1]
         for m in range(2, MAX_HARMONIC_SEARCH + 1):
@@ -98,11 +100,12 @@ class Plan:
         self.hyp_rank = self.hyp_m * 100 - self.hyp_c * 2 - (self.hyp_s < 0)
         hyp, hh = [], []
         for i, m in enumerate(ms):
-            for h in range(1, m):
+            for h in [*range(1, m), *(range(m + 1, 2 * m + 1) if m > 1 else ())]:
                 hyp.append(i)
                 hh.append(h)
         self.sup_hyp = np.array(hyp)
         self.sup_h = np.array(hh, dtype=float)
+        self.sup_above = self.sup_h > self.hyp_m[self.sup_hyp]
         self.sup_first = np.flatnonzero(self.sup_h == 1)  # the h = 1 entry of hypotheses 1..
         self.fold_k = np.arange(1, SELECT_FOLD_HARMONICS + 1, dtype=float)
 
