@@ -145,7 +145,10 @@ def _inspect(log_path: Path) -> tuple[int, bool, tuple[list[str], str, str]]:
     except UnicodeDecodeError:
         raise InputError(f"{log_path}: not a text CSV file") from None
     sep, decimal = _separator(first, second)
-    header = [h.strip() for h in next(csv.reader([first.strip()], delimiter=sep), [])]
+    try:
+        header = [h.strip() for h in next(csv.reader([first.strip()], delimiter=sep), [])]
+    except csv.Error as exc:  # a carriage return or a broken quote inside the header line
+        raise InputError(f"{log_path}: the header line cannot be read as CSV ({_short(exc)})") from None
     return size, interrupted, (header, sep, decimal)
 
 

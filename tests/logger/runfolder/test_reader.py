@@ -164,3 +164,19 @@ def test_rows_of_a_baseline_window_get_their_shift_from_run_json(tmp_path, finis
     second = np.median(f[(t >= 2.99) & (t <= 3.99)])
     want = np.where(t < 2.99, f - first, f - second)
     np.testing.assert_allclose(log.table["shift_hz"].to_numpy(), want, atol=1e-6)  # 6 decimals in the file
+
+
+@pytest.mark.parametrize("header", ["t_s,freq\rhz", "t_s\r,freq_hz", "t_s,\"freq_hz"])
+def test_a_header_that_is_not_one_csv_line_is_refused_in_one_line(tmp_path, header):
+    # a carriage return inside the header (a file cut and pasted between systems) or an unclosed
+    # quote: Python's csv module refuses the line; the reader says so as an InputError
+    (tmp_path / "log.csv").write_bytes((header + "\n0.0,1000\n0.02,1000\n").encode())
+    with pytest.raises(InputError, match="log.csv"):
+        read_log(tmp_path)
+
+
+def test_windows_line_endings_are_read(tmp_path):
+    # CRLF, as a spreadsheet on Windows saves a CSV (RFC 4180 line ends)
+    (tmp_path / "log.csv").write_bytes(b"t_s,freq_hz\r\n0.0,1000.5\r\n0.02,1000.25\r\n")
+    log = read_log(tmp_path)
+    np.testing.assert_array_equal(log.freq_hz, [1000.5, 1000.25])
