@@ -133,8 +133,13 @@ def test_thin_ring_formula_against_filament_sum(section_over_r):
 
 def test_round_wire_loop_textbook_formula():
     # A single round-wire loop: L = mu0 a (ln(8a/rho) - 7/4) (uniform current), e.g. a = 0.1 m,
-    # rho = 1 mm -> 1.2566e-6 * 0.1 * (ln 800 - 1.75) = 0.6201 uH [derived]
-    assert ind.round_wire_rings_h(1, 0.1 - 1e-3, 2e-3, 0.0, 2e-3, 2e-3) * 1e6 == pytest.approx(0.62014, rel=1e-4)
+    # rho = 1 mm -> 4 pi 1e-7 * 0.1 * (ln 800 - 1.75) = 0.620102 uH [derived, written out here].
+    # Tolerance: mu0 differs from 4 pi 1e-7 by 5.5e-10 relative since the 2019 SI (CODATA 2018)
+    a_m, rho_m = 0.1, 1e-3
+    textbook_h = 4e-7 * math.pi * a_m * (math.log(8 * a_m / rho_m) - 1.75)
+    assert textbook_h * 1e6 == pytest.approx(0.620102, abs=5e-7)
+    assert ind.round_wire_rings_h(1, a_m - rho_m, 2 * rho_m, 0.0, 2 * rho_m, 2 * rho_m) == pytest.approx(
+        textbook_h, rel=1e-9)
 
 
 # --- the analysis ------------------------------------------------------------------------------
@@ -181,12 +186,21 @@ def test_wire_length_is_turns_times_mean_circumference():
     assert hot.resistance_ohm / rep.resistance_ohm == pytest.approx(1 + 0.00393 * 40, rel=1e-12)
 
 
+# Medhurst 1947 (Wireless Engineer 24), H in pF per cm of diameter against l/D, as commonly
+# reproduced; written here from memory of that table (REFERENCES section 6 names the paper but not
+# the values), not copied from the code's table
+MEDHURST_H_QUOTED = ((1.0, 0.46), (1.5, 0.47), (2.0, 0.50), (2.5, 0.56), (3.0, 0.61), (3.5, 0.67),
+                     (4.0, 0.72), (4.5, 0.77), (5.0, 0.81))
+
+
 def test_medhurst_fit_against_table():
-    # Medhurst 1947 (Wireless Engineer 24) table of H vs l/D, as quoted; the fitted expression used
-    # outside 1..5 must stay within its usual +-10 % of the table
-    for x, h in MEDHURST_TABLE:
+    # the table values, and the fitted expression used outside 1..5 within its usual +-10 % of them
+    assert len(MEDHURST_TABLE) == len(MEDHURST_H_QUOTED)
+    for x, h in MEDHURST_H_QUOTED:
         assert 0.1126 * x + 0.08 + 0.27 / math.sqrt(x) == pytest.approx(h, rel=0.10)
-        assert medhurst_h_factor(x) == h
+        assert medhurst_h_factor(x) == pytest.approx(h, abs=1e-12)
+    # between table rows: linear interpolation, 1.25 -> (0.46 + 0.47) / 2
+    assert medhurst_h_factor(1.25) == pytest.approx(0.465, abs=1e-12)
 
 
 def test_medhurst_capacitance_and_srf():
@@ -201,8 +215,44 @@ def test_lc_frequency():
     # f = 1 / (2 pi sqrt(L C)): 100 uH with 100 nF -> 50 329.2 Hz [derived by hand]
     assert lc_frequency_hz(100e-6, 100e-9) == pytest.approx(50329.2, abs=0.1)
     assert capacitance_for_frequency_nf(100e-6, 50329.2) == pytest.approx(100.0, rel=1e-5)
+    # a multilayer coil has no self-capacitance estimate: only the tuning capacitor counts
     rep = analyse_coil(CoilDesign(200, 50, 10, depth_mm=5, awg=26, cap_nf=100))
-    assert rep.lc_freq_hz == pytest.approx(lc_frequency_hz(rep.inductance_uh * 1e-6, 100e-9), rel=1e-12)
+    assert rep.self_capacitance_pf is None
+    assert rep.lc_freq_hz == pytest.approx(1 / (2 * math.pi * math.sqrt(rep.inductance_uh * 1e-6 * 100e-9)),
+                                           rel=1e-12)
+
+
+def _single_layer_l_over_d(l_over_d, cap_nf=None):
+    # D = 2 x mean radius = inner diameter + one wire outer diameter; 1 mm wire on a 99 mm former
+    return CoilDesign(20, 99.0, 100.0 * l_over_d, wire_diameter_mm=0.9, outer_wire_diameter_mm=1.0,
+                      cap_nf=cap_nf)
+
+
+def test_lc_frequency_includes_the_self_capacitance():
+    # Single layer, l = D = 100 mm, 20 turns: Wheeler 1928 L = N^2 r^2 / (9 r + 10 l) uH (inches),
+    # Medhurst's self-capacitance H(1) D[cm] = 0.46 x 10 = 4.6 pF (table above) in parallel with
+    # a 100 pF capacitor: f = 1 / (2 pi sqrt(L (C + C_self))) (Thomson) [derived here]. Leaving
+    # C_self out would raise f by 2.3 %.
+    rep = analyse_coil(_single_layer_l_over_d(1.0, cap_nf=0.1))
+    r_in, l_in = 50.0 / 25.4, 100.0 / 25.4
+    l_h = 20 ** 2 * r_in ** 2 / (9 * r_in + 10 * l_in) * 1e-6
+    assert rep.inductance_uh * 1e-6 == pytest.approx(l_h, rel=1e-12)
+    assert rep.self_capacitance_pf == pytest.approx(4.6, rel=1e-12)
+    expected = 1 / (2 * math.pi * math.sqrt(l_h * (100e-12 + 4.6e-12)))
+    assert rep.lc_freq_hz == pytest.approx(expected, rel=1e-9)
+
+
+@pytest.mark.parametrize("l_over_d, k_table", [(0.25, 0.365432), (0.50, 0.525510), (1.00, 0.688423)])
+def test_reported_nagaoka_coefficient_is_grovers(l_over_d, k_table):
+    # the coefficient the coil report prints, for the coil's own l/D (D = twice the mean radius),
+    # against Grover, Inductance Calculations, Table 36 [pub] to half a unit of the 6th decimal
+    rep = analyse_coil(_single_layer_l_over_d(l_over_d))
+    assert rep.mean_radius_mm == pytest.approx(50.0)
+    assert rep.nagaoka_k == pytest.approx(k_table, abs=6e-7)
+    # and the exact inductance is the current sheet mu0 pi a^2 N^2 K / l with that K
+    a_m, l_m = 0.05, 0.1 * l_over_d
+    assert rep.exact_inductance_uh * 1e-6 == pytest.approx(4e-7 * math.pi * math.pi * a_m ** 2 * 400 * k_table / l_m,
+                                                           rel=2e-6)
 
 
 # --- impossible geometry and files ---------------------------------------------------------------

@@ -86,3 +86,49 @@ def test_bad_inputs(call):
 def test_resistor_warnings():
     assert t5.resistor_warnings(t5.astable_two_resistor(100, 2e6, 1))
     assert not t5.resistor_warnings(t5.astable_two_resistor(10e3, 10e3, 1))
+
+
+# IEC 60063 E6 mantissas, written out here: 1.0 1.5 2.2 3.3 4.7 6.8
+E6_QUOTED = (1.0, 1.5, 2.2, 3.3, 4.7, 6.8)
+
+
+def _nearest_e6(value):
+    # nearest in the log sense (the E series are geometric), searched over three decades
+    cands = [m * 10.0 ** e for e in range(-3, 7) for m in E6_QUOTED]
+    return min(cands, key=lambda x: abs(math.log(x / value)))
+
+
+@pytest.mark.parametrize("freq_hz, r_ohm, expected_nf", [
+    (10e3, 10e3, 15.0),    # 1.44 / (1e4 x 1e4) = 14.4 nF -> 15 nF (half or twice would be 6.8 or 33)
+    (100e3, 10e3, 1.5),    # 1.44 nF -> 1.5 nF
+    (1e3, 47e3, 33.0),     # 30.6 nF -> 33 nF
+])
+def test_suggest_cap_nf_follows_the_datasheet_formula(freq_hz, r_ohm, expected_nf):
+    # NE555 datasheet f = 1.44 / ((R1 + 2 R2) C) [pub] solved for C with R1 + 2 R2 = target R,
+    # rounded to the nearest E6 value; the rounding of 1.44 (0.19 %) cannot change the E6 pick here
+    c_nf = 1.44 / (freq_hz * r_ohm) * 1e9
+    assert _nearest_e6(c_nf) == pytest.approx(expected_nf)
+    assert t5.suggest_cap_nf(freq_hz, r_ohm) == pytest.approx(expected_nf, rel=1e-9)
+
+
+def test_e_series_are_iec_60063():
+    # IEC 60063 preferred numbers, written out here (E6, E12, E24)
+    e12 = (1.0, 1.2, 1.5, 1.8, 2.2, 2.7, 3.3, 3.9, 4.7, 5.6, 6.8, 8.2)
+    e24 = (1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0,
+           3.3, 3.6, 3.9, 4.3, 4.7, 5.1, 5.6, 6.2, 6.8, 7.5, 8.2, 9.1)
+    for name, ref in (("E6", E6_QUOTED), ("E12", e12), ("E24", e24)):
+        assert tuple(t5.E_SERIES[name]) == ref
+        # every value is its own nearest standard value, in any decade
+        for v in ref:
+            assert t5.nearest_standard(v * 1e3, name) == pytest.approx(v * 1e3, rel=1e-12)
+
+
+def test_suggest_cap_default_resistance_is_10_kohm():
+    # the default target R1 + 2 R2 is 10 kohm (docstring): 10 kHz -> 1.44 / (1e4 x 1e4) = 14.4 -> 15 nF
+    assert t5.suggest_cap_nf(10e3) == pytest.approx(15.0)
+
+
+def test_duty_of_exactly_one_half_is_refused_for_two_resistors():
+    # R1 = (2 duty - 1)(R1 + 2 R2) is zero at 50 %: the two-resistor circuit cannot make it
+    with pytest.raises(InputError, match="above 0.5"):
+        t5.design_two_resistor(1000.0, 10.0, duty=0.5)

@@ -75,3 +75,26 @@ def test_markers_baseline_pools_all_stretches():
 def test_markers_without_baseline_rows_refused():
     with pytest.raises(InputError, match="no baseline rows"):
         baseline_from_markers(_table(np.full(10, 1.0)), [Marker(0, 1, "coin", 10.0)])
+
+
+def test_markers_baseline_is_the_median_not_the_mean_of_unequal_stretches():
+    # Two baseline stretches of unequal length at different levels, plus a few glitch frames: the
+    # median (reference: numpy.median, and the value worked out by hand) differs from the mean.
+    t = (np.arange(1000) + 0.5) * HOP  # 20 s
+    f = np.full(1000, 4000.0)
+    f[t >= 12] = 4000.6               # second stretch 0.6 Hz higher, and shorter (2 s against 4 s)
+    f[[10, 11, 12]] = 4100.0          # three glitches inside the first stretch
+    markers = [Marker(0.0, 4.0, "baseline", np.nan), Marker(12.0, 14.0, "baseline", np.nan)]
+    b = baseline_from_markers(_table(f), markers)
+    inside = (t <= 4) | ((t >= 12) & (t <= 14))
+    assert b.freq_hz == np.median(f[inside]) == 4000.0  # 200 frames at 4000 (3 glitched) vs 100
+    assert abs(np.mean(f[inside]) - 4000.0) > 0.5         # so the mean would be told apart
+
+
+def test_start_baseline_is_the_median_not_the_mean():
+    f = np.full(500, 5000.0)
+    f[:40] = 5000.0 + np.linspace(0, 30, 40)  # a target passing by in the first 0.8 s
+    b = baseline_from_start(_table(f), seconds=2.0)
+    t = (np.arange(500) + 0.5) * HOP
+    assert b.freq_hz == np.median(f[t <= 2.0])  # reference: numpy.median
+    assert b.freq_hz < np.mean(f[t <= 2.0]) - 1.0

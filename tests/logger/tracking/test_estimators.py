@@ -118,3 +118,23 @@ def test_dtft_matches_fft_on_bins():
     rng = np.random.default_rng(3)
     x = rng.standard_normal(64)
     assert np.allclose(est.dtft(x, np.arange(64)), np.fft.fft(x), atol=1e-12)
+
+
+def test_jacobsen_q_factors_are_the_published_ones():
+    # Jacobsen & Kootsookos 2007 (IEEE SP Magazine 24(3)), Table 1 [pub, REFERENCES section 3]
+    assert est.JACOBSEN_Q == {"hann": 0.55, "hamming": 0.60, "blackman": 0.55}
+
+
+@pytest.mark.parametrize("delta", [-0.4, -0.25, -0.1, 0.1, 0.25, 0.4])
+def test_jacobsen_windowed_hamming_uses_its_own_q(delta):
+    # The windowed formula written out here, Re[Q (X[k-1] - X[k+1]) / (2X[k] + X[k-1] + X[k+1])]
+    # with the published Hamming Q = 0.60 (Jacobsen & Kootsookos 2007), on a spectrum windowed by
+    # numpy.hamming (an independent window). Q is an empirical fit, so the estimate itself is
+    # checked loosely: within 0.03 bin of the truth for |delta| <= 0.4 (a few hundredths of a bin
+    # is the residual bias the authors show; from memory). Hann's Q (0.55) misses by 0.045 there.
+    n, k = 1024, 100
+    spec = np.fft.fft(complex_tone(n, k, delta) * np.hamming(n))
+    xl, xp, xr = spec[k - 1], spec[k], spec[k + 1]
+    got = est.jacobsen_windowed(xl, xp, xr, "hamming")
+    assert got == pytest.approx(np.real(0.60 * (xl - xr) / (2 * xp + xl + xr)), rel=1e-12)
+    assert abs(got - delta) <= 0.03

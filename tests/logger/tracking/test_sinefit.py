@@ -97,3 +97,31 @@ def test_wild_start_is_refused_not_followed():
     fit = sinefit.fit_sine4(x, FS, start, max_iter=3)
     assert not fit.converged
     assert abs(fit.freq_hz - start) < FS / 1024
+
+
+@pytest.mark.parametrize("bins_off", [1.5, 4.0, 20.0])
+def test_wild_step_is_refused_not_taken(bins_off):
+    # The four-parameter fit linearises in the frequency, which holds within a fraction of a DFT
+    # bin fs/N (IEEE Std 1057 starts it from an interpolated FFT, REFERENCES section 4). A start
+    # further off asks for a step beyond one bin on the first iteration: the fit must refuse it
+    # (keep the start, report no convergence) rather than jump to wherever the step points.
+    n = 4096
+    bin_hz = FS / n
+    f0 = 1000.3
+    x = tone(n, f0, 1.0, 0.2, 0.0) + tone(n, f0 + 8 * bin_hz, 0.6, 0.0, 0.0)
+    start = f0 + bins_off * bin_hz
+    f, a, b, c, it, conv = sinefit.fit_sine4_frames(x[None, :], FS, start)
+    assert not conv[0]
+    # every accepted step is at most one bin, so after `it` iterations the frequency is within
+    # `it` bins of the start; a refused first step leaves it exactly at the start
+    assert abs(f[0] - start) <= it * bin_hz
+    if bins_off >= 4.0:
+        assert f[0] == start and it == 1
+
+
+def test_good_start_converges_to_the_tone():
+    # the counterpart: a start 0.3 bin off converges (IEEE 1057), within 1e-6 Hz for a clean tone
+    n = 4096
+    x = tone(n, 1000.3, 1.0, 0.2, 0.0)
+    f, *_, conv = sinefit.fit_sine4_frames(x[None, :], FS, 1000.3 + 0.3 * FS / n)
+    assert conv[0] and f[0] == pytest.approx(1000.3, abs=1e-6)
