@@ -73,8 +73,12 @@ def utc_iso(t: _dt.datetime) -> str:
 
 
 def _utc_of_frames(frames, context: RowContext) -> list[str]:
-    start = context.start
-    return [utc_iso(start + _dt.timedelta(seconds=float(t))) for t in frames.t_s]
+    # what utc_iso(start + timedelta(seconds=t)) gives, for all frames at once: timedelta rounds
+    # t * 1e6 half to even (as rint does), the text truncates to milliseconds
+    start = context.start.astimezone(_dt.timezone.utc).replace(tzinfo=None)
+    micros = np.rint(np.asarray(frames.t_s, dtype=float) * 1e6).astype(np.int64)
+    stamps = (np.datetime64(start, "us") + micros.astype("timedelta64[us]")).astype("datetime64[ms]")
+    return [text + "Z" for text in np.datetime_as_string(stamps, unit="ms").tolist()]
 
 
 def _shift_of_frames(frames, context: RowContext) -> np.ndarray:

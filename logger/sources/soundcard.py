@@ -98,6 +98,12 @@ def resolve_device(device: str | int | None) -> dict:
     raise InputError(f"{setting('device')} {text}: matches several input devices ({names}); give the index")
 
 
+#: audio per callback by default: every callback has a fixed cost (sound server client, PortAudio,
+#: Python), and the host's own choice (320 frames at 48 kHz through ALSA ``pulse``) made it most of
+#: the capture's CPU (docs/capture.md, Performance); the live view lags by at most this much
+BLOCK_S = 0.04
+
+
 class SoundcardSource:
     """A live soundcard input as a block source for :class:`coilshift.logger.capture.engine.CaptureEngine`
     (the :class:`~coilshift.logger.sources.protocol.BlockSource` interface).
@@ -108,11 +114,12 @@ class SoundcardSource:
     sample_rate_hz : requested rate; None uses the device's default rate
     channel : 0-based input channel to track
     latency : PortAudio latency hint; ``"high"`` gives the largest buffers (fewest overflows)
-    blocksize : frames per callback; 0 lets the host choose
+    blocksize : frames per callback; 0 lets the host choose; None (default): the power of two
+        nearest :data:`BLOCK_S` of audio (2048 at 48 kHz, 8192 at 192 kHz)
     """
 
     def __init__(self, device: str | int | None = None, sample_rate_hz: float | None = None, channel: int = 0,
-                 latency: str | float = "high", blocksize: int = 0):
+                 latency: str | float = "high", blocksize: int | None = None):
         self.info = resolve_device(device)
         if channel < 0:
             raise InputError(f"{setting('channel')} {channel}: channels count from 0")
@@ -124,7 +131,8 @@ class SoundcardSource:
         if not (self.requested_rate_hz > 0 and math.isfinite(self.requested_rate_hz)):
             raise InputError(f"{setting('sample_rate_hz')} {sample_rate_hz}: must be a positive sample rate")
         self.latency = latency
-        self.blocksize = int(blocksize)
+        self.blocksize = int(blocksize) if blocksize is not None else \
+            2 ** round(math.log2(BLOCK_S * self.requested_rate_hz))
         self.sample_rate_hz = self.requested_rate_hz
         self._stream = None
         self._closing = False

@@ -58,12 +58,11 @@ def coarse_stage(plan: Plan, frames) -> Coarse:
     nf = frames.shape[0]
     # a DC offset leaks only into bins 0 and 1 of a periodic-Hann DFT, which are never
     # searched, so the coarse stage needs no mean removal; single precision is ample here
-    xw = frames.astype(np.float32)
-    xw *= plan.window32
-    spec = sfft.rfft(xw, axis=1)
-    sq = spec.view(np.float32)
-    sq = sq * sq
-    power = sq[:, 0::2] + sq[:, 1::2]  # |X|^2, (F, nbins) float32
+    # one pass: each sample is rounded to float32, then windowed in float32
+    xw = np.multiply(frames, plan.window32, dtype=np.float32)
+    spec = sfft.rfft(xw, axis=1, overwrite_x=True)
+    power = np.square(spec.real)
+    power += np.square(spec.imag)  # |X|^2, (F, nbins) float32
 
     # noise floor per Hann bin: median of a decimated spectrum / ln 2 (exponential power)
     noise_bins = power[:, plan.kmin:plan.noise_idx[-1] + 1:plan.noise_step]  # = the noise_idx bins

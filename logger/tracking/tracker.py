@@ -32,6 +32,7 @@ from coilshift.logger.errors import InputError
 from coilshift.logger.runfolder import flags as fl
 from coilshift.logger.runfolder.frames import FrameTable
 from coilshift.logger.tracking.analyse import analyse_frames
+from coilshift.logger.tracking.heap import reuse_freed_memory
 from coilshift.logger.tracking.plan import Plan
 from coilshift.logger.tracking.settings import CHUNK_FRAMES, TrackerSettings
 
@@ -71,6 +72,7 @@ class FrameTracker:
         self.frame_len = int(sfft.next_fast_len(nominal, real=True))
         self.hop_len = max(1, int(round(self.settings.hop_ms * self.sample_rate_hz / 1000)))
         self._plan = Plan(self.sample_rate_hz, self.frame_len, self.settings)
+        reuse_freed_memory()  # each chunk's arrays reuse the last chunk's pages
         self._buf = np.zeros(0)
         self._buf_start = 0  # absolute index of _buf[0]
         self._next = 0  # absolute index of the next frame's first sample
