@@ -35,7 +35,7 @@ from pathlib import Path
 import numpy as np
 
 from coilshift.logger.capture.health import LevelMeter, StreamHealth, measured_rates
-from coilshift.logger.capture.session import CaptureSession, CaptureSnapshot
+from coilshift.logger.capture.session import CaptureSession, CaptureSnapshot, with_live_events
 from coilshift.logger.capture.timeline import FrameTimeline
 from coilshift.logger.errors import InputError, setting
 from coilshift.logger.pipeline.runmeta import pending_baseline_meta, run_meta, tracker_meta
@@ -69,7 +69,7 @@ class CaptureEngine:
     fsync_interval_s : handed to the run writer
     stall_timeout_s : a source that delivers nothing for this long has failed (at least 10 s
         are allowed for the first block)
-    track_batch_s : audio is handed to the tracker in batches of about this length
+    track_batch_s : audio goes to the tracker in batches this long (docs/capture.md, Performance)
     tracker_factory : ``f(sample_rate_hz, settings)`` making a streaming tracker; default
         :class:`coilshift.logger.tracking.tracker.FrameTracker`
     claim : a :class:`~coilshift.logger.runfolder.folders.RunClaim` for ``run_dir``, taken
@@ -83,13 +83,13 @@ class CaptureEngine:
     def __init__(self, source, run_dir: str | Path, settings, corrections=None, *, baseline_s: float = 2.0,
                  save_audio: bool = False, max_seconds: float | None = None, meta: dict | None = None,
                  queue_blocks: int = 4000, append_interval_s: float = 0.25, fsync_interval_s: float = 0.75,
-                 stall_timeout_s: float = 3.0, track_batch_s: float = 0.05, tracker_factory=None,
-                 claim=None, close_timeout_s: float = 5.0):
+                 stall_timeout_s: float = 3.0, track_batch_s: float = 0.2, tracker_factory=None,
+                 claim=None, close_timeout_s: float = 5.0, events=None):
         if baseline_s <= 0:
             raise InputError(f"{setting('baseline_s')} must be > 0, got {baseline_s}")
         if max_seconds is not None and max_seconds <= 0:
             raise InputError(f"{setting('max_seconds')} must be > 0, got {max_seconds}")
-        self.source = source
+        self.source, self.events = source, events  # events: DetectorSettings, then LiveEvents (logger/events)
         self.run_dir = Path(run_dir)
         self.settings = settings
         self.corrections = corrections
@@ -170,8 +170,8 @@ class CaptureEngine:
         except BaseException:
             self._close_source()
             raise
-        self._feed = LogFeed(self.writer, self.baseline_s, on_baseline=self.session.on_baseline,
-                             on_rows=self._rows_written)
+        self._feed = with_live_events(self, LogFeed(self.writer, self.baseline_s, on_baseline=self.session.on_baseline,
+                                                    on_rows=self._rows_written))
         # a live input is in dBFS already: no amplitude offset
         self._timeline = FrameTimeline(self.sample_rate_hz, self._new_tracker, self._batch_samples,
                                        FrameStage(self.sample_rate_hz, self.corrections), self._feed, self.session,
