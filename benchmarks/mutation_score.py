@@ -19,7 +19,8 @@ Each mutant runs ``pytest -x -q`` on the module's test folder(s) in a subprocess
 the repository itself is never modified (the copy lives in a temporary folder, imported first
 through ``PYTHONPATH``). Lines ending in ``# pragma: no mutate`` are skipped (only for lines whose
 mutants are equivalent, with the reason in the comment). A single mutant judged equivalent is listed
-in ``benchmarks/mutation_equivalent.txt`` (module, source line, mutation, why); it is reported as
+in ``benchmarks/mutation_equivalent.txt`` (module, source line, mutation, why; a mutation that occurs
+twice on its line carries ``#k``, see :func:`equivalence_key`); it is reported as
 ``E`` and left out of the score. Run it with ``nice -n 19`` through the shared test lock, one
 module at a time and with ``--max`` so one batch stays under about ten minutes.
 """
@@ -339,6 +340,18 @@ def source_line(m: Mutant) -> str:
     return (ROOT / m.module).read_text().splitlines()[m.line - 1].strip()
 
 
+def equivalence_key(m: Mutant) -> tuple[str, str, str]:
+    """(module, stripped source line, mutation) as written in the equivalent-mutant file.
+
+    When one line holds the same mutation more than once (two constants ``1`` on a line), the
+    mutation is suffixed ``#k``, its 1-based place among them from the left, so one occurrence can
+    be judged equivalent without hiding the others.
+    """
+    same = [s.index for s in mutation_sites(m.module) if s.line == m.line and s.description == m.description]
+    text = m.description if len(same) == 1 else f"{m.description} #{same.index(m.index) + 1}"
+    return m.module, source_line(m), text
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("modules", nargs="*", help="module paths (default: the main computation modules)")
@@ -365,7 +378,7 @@ def main(argv=None) -> int:
         plan += [(m, tests) for m in sites]
     if args.list:
         for m, _ in plan:
-            eq = " (equivalent)" if (m.module, source_line(m), m.description) in equivalent else ""
+            eq = " (equivalent)" if equivalence_key(m) in equivalent else ""
             print(f"{m.module}:{m.line} [{m.index}] {m.kind}: {m.description}{eq}")
         print(f"{len(plan)} mutants")
         return 0
@@ -379,7 +392,7 @@ def main(argv=None) -> int:
                 return 2
         t0 = time.monotonic()
         for i, (m, tests) in enumerate(plan, start=1):
-            if (m.module, source_line(m), m.description) in equivalent:
+            if equivalence_key(m) in equivalent:
                 outcome = "equivalent"
             else:
                 outcome = run_mutant(m, repo, import_dir, tests, args.timeout)
@@ -421,6 +434,9 @@ def _report(results, elapsed_s: float) -> None:
         print("\nsurvivors (kill each with a test, or explain it in benchmarks/mutation_equivalent.txt):")
         for m in survivors:
             print(f"  {m.module}:{m.line} [{m.index}] {m.kind}: {m.description}    {source_line(m)}")
+        print("\nas keys for the equivalent-mutant file (module | line | mutation | why):")
+        for m in survivors:
+            print("  " + " | ".join(equivalence_key(m)) + " | ")
 
 
 if __name__ == "__main__":

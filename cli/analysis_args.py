@@ -21,7 +21,7 @@ def analysis_kwargs(args) -> dict:
             models[name] = parse_target_spec(spec)
     if args.bootstrap < 0:
         raise InputError(f"--bootstrap must be 0 or more, got {args.bootstrap}")
-    return {"settle_s": getattr(args, "analysis_settle_s", None), "threshold_hz": args.threshold_hz, "k": args.noise_factor, "coil": coil,
+    return {"settle_s": getattr(args, "trim_s", None), "threshold_hz": args.threshold_hz, "k": args.noise_factor, "coil": coil,
             "target_models": models, "polarity": args.polarity, "reference": dict(args.reference_target),
             "fit_offset": args.fit_offset, "n_boot": args.bootstrap, "seed": args.seed,
             "placement_mm": args.placement_mm}
@@ -29,7 +29,7 @@ def analysis_kwargs(args) -> dict:
 
 def report_results(results, args) -> None:
     """Print the summary (text or JSON) and write the output folder when asked
-    (``args.output``, ``args.force``, ``args.json``)."""
+    (``args.out``, ``args.force``, ``args.json``)."""
     import sys
 
     from coilshift.analysis.calibration.compare import compare_runs, unique_names
@@ -41,10 +41,10 @@ def report_results(results, args) -> None:
     from coilshift.logger.runfolder.outputs import building_output_dir
 
     out = None
-    if args.output:
-        with building_output_dir(args.output, args.force) as build:  # swapped in whole, or not at all
+    if args.out:
+        with building_output_dir(args.out, args.force) as build:  # swapped in whole, or not at all
             write_outputs(results, build)
-        out = Path(args.output)
+        out = Path(args.out)
         note_done(f"the outputs were written to {out}")
     if args.json:
         if len(results) == 1:

@@ -3,6 +3,7 @@ remembers it has been shown."""
 
 from __future__ import annotations
 
+import argparse
 import json
 import os
 import sys
@@ -20,6 +21,18 @@ WIRING_CAUTION = (
 )
 
 _STATE_KEY = "wiring_caution_shown"
+
+
+class CautionApart(argparse.HelpFormatter):
+    """``--help`` formatter of the live commands: the description wraps as usual, the epilog's
+    paragraphs (keys, then the caution) stay apart, so the caution never runs into the text."""
+
+    def add_text(self, text):
+        if text and "CAUTION" in text:
+            paragraphs = [textwrap.fill(" ".join(p.split()), width=78) for p in text.split("\n\n")]
+            self._add_item(lambda t: t + "\n", ["\n\n".join(paragraphs)])
+        else:
+            super().add_text(text)
 
 
 def state_path() -> Path:

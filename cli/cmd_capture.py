@@ -2,32 +2,27 @@
 
 from __future__ import annotations
 
-import argparse
 import io
 import sys
-import textwrap
 from pathlib import Path
 
-from coilshift.cli.cautions import WIRING_CAUTION
-from coilshift.cli.options import (SECONDS, add_force_option, add_json_option, add_live_input_options, add_run_folder_option,
-                                   add_synthetic_option, add_tracking_options)
+from coilshift.cli.cautions import WIRING_CAUTION, CautionApart
+from coilshift.cli.options import (SECONDS, add_false_rate_option, add_force_option, add_json_option,
+                                   add_live_input_options, add_run_folder_option, add_synthetic_option,
+                                   add_tracking_options)
 
 ORDER = 20
 
 
-class _KeepEpilog(argparse.HelpFormatter):
-    """Wrap the description as usual but keep the epilog's paragraphs (the caution stands apart)."""
 
-    def add_text(self, text):
-        if text and "CAUTION" in text:
-            paragraphs = [textwrap.fill(" ".join(p.split()), width=78) for p in text.split("\n\n")]
-            self._add_item(lambda t: t + "\n", ["\n\n".join(paragraphs)])
-        else:
-            super().add_text(text)
+def _event_settings(args):
+    """The live event detector's settings (logger/events)."""
+    from coilshift.logger.events.detector import DetectorSettings
 
+    return DetectorSettings(false_per_hour=args.false_per_hour)
 
 def register(subparsers) -> None:
-    from coilshift.logger.capture.view import KEY_MARKER, KEY_QUIT, KEY_REZERO
+    from coilshift.logger.capture.view import KEY_BASELINE, KEY_MARKER, KEY_QUIT, KEY_REZERO
 
     p = subparsers.add_parser(
         "capture",
@@ -37,10 +32,12 @@ def register(subparsers) -> None:
                     "'track'), flushed to disk at least once a second so a crash keeps the data. "
                     "A live panel shows frequency, shift, level, SNR and faults; keys re-zero the "
                     "baseline, add markers and quit.",
-        epilog=f"keys in the live panel: {KEY_REZERO} re-zero the baseline, {KEY_MARKER} add a marker "
-               f"(label 'baseline', 'end', or a target and its distance in mm, e.g. 'coin 50'), "
-               f"{KEY_QUIT} quit (Ctrl-C also ends the run cleanly).\n\n" + WIRING_CAUTION,
-        formatter_class=_KeepEpilog,
+        epilog=f"keys in the live panel: {KEY_REZERO} re-zero the baseline, {KEY_MARKER} add a marker, timed "
+               f"when you press it (label 'baseline', 'end', or a target and its distance in mm, e.g. "
+               f"'coin 50'), {KEY_BASELINE} start a target-free baseline stretch at once, {KEY_QUIT} quit "
+               f"(Ctrl-C also ends the run cleanly). A run is analysable ('coilshift analyze') when every "
+               f"target stretch has a baseline stretch before and after it.\n\n" + WIRING_CAUTION,
+        formatter_class=CautionApart,
     )
     add_run_folder_option(p)
     add_force_option(p, "replace the run files in an existing folder")
@@ -52,6 +49,7 @@ def register(subparsers) -> None:
                      help="also save the raw input as audio.wav (32-bit float WAV) to re-track later")
     add_synthetic_option(src)  # paced test tone: F[,F2@T2...]
     add_tracking_options(p)
+    add_false_rate_option(p.add_argument_group("events (found live, listed on screen, written to events.csv)"))
     out = p.add_argument_group("display")
     out.add_argument("--no-view", action="store_true", help="no live readout (only the final summary)")
     out.add_argument("--plot", action="store_true", help="also show a live plot window (needs a display)")
@@ -114,7 +112,7 @@ def _start(args, source, settings, corr, interactive: bool):
     claim.hold()  # another command writing there is refused now, before the device is opened
     run_dir = claim.run_dir
     engine = CaptureEngine(source, run_dir, settings, corr, baseline_s=args.baseline_s, save_audio=args.save_audio,
-                           max_seconds=args.seconds, claim=claim,
+                           max_seconds=args.seconds, claim=claim, events=_event_settings(args),
                            meta={"command": "capture", "options": {k: v for k, v in vars(args).items()
                                                                   if k not in ("func", "command")}})
     if show_caution_once() and interactive:
@@ -189,6 +187,22 @@ def _how_interrupted(exc: BaseException) -> str | None:
     return "hangup" if code in (errno.EIO, errno.ENXIO) else None
 
 
+def _baseline_advice(run_dir) -> None:
+    """Say so when the run's markers hold target stretches but no baseline: it cannot be analysed."""
+    from coilshift.logger.errors import InputError
+    from coilshift.logger.runfolder.markers import read_markers
+
+    path = Path(run_dir) / "markers.csv"
+    try:
+        marks = read_markers(path) if path.is_file() else []
+    except (InputError, OSError):
+        return
+    if any(not m.is_baseline for m in marks) and not any(m.is_baseline for m in marks):
+        print(f"coilshift: note: {path} marks targets but no baseline stretch; 'coilshift analyze' needs a "
+              "target-free stretch before and after each target (key b in the live panel, or add 'baseline' "
+              "rows to markers.csv)", file=sys.stderr)
+
+
 def _finish(args, engine, summary: dict, how: str, run_dir) -> int:
     """Print the final summary and say why the run ended; the exit code (0 complete, 1 device
     error, 3 any other failure)."""
@@ -204,6 +218,7 @@ def _finish(args, engine, summary: dict, how: str, run_dir) -> int:
               f"(ended by {'you' if how in ('quit', 'interrupt', 'hangup') else summary['ended_by']}); "
               f"faults: {summary['overflows']} overflows, {summary['gaps']} gaps "
               f"({summary['lost_samples']} samples lost), {summary['device_errors']} device errors")
+    _baseline_advice(run_dir)
     if summary["status"] == "device_error":
         hung = f"; {summary['stream_close']}" if summary.get("stream_close") else ""
         print(f"coilshift: error: input stopped: {summary['message']}{hung}; the log up to then is kept in "

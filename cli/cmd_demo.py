@@ -63,6 +63,7 @@ def run(args) -> int:
 
     from coilshift.cli.common import note_done, print_json
     from coilshift.sim.demo import CAUTION, run_demo, summary_table
+    from coilshift.sim.demo_report import drift_text
 
     out = args.out if args.out is not None else _free_dir()
     quiet = args.json
@@ -77,7 +78,7 @@ def run(args) -> int:
     st = summary["stability"]
     if st["oadev_hz_at_1s"] is not None:
         print(f"B-200 stability: Allan deviation {1000 * st['oadev_hz_at_1s']:.2f} mHz at 1 s, "
-              f"drift {st['drift_hz_per_min']:+.3g} Hz/min")
+              f"settled drift {drift_text(st)}")
     print("all recordings are synthetic (made by the simulator); see the report's note")
     print(CAUTION)
     print(f"report: {summary['report']}")

@@ -2,9 +2,9 @@
 
 from __future__ import annotations
 
-from coilshift.cli.options import (CONDUCTIVITY_S_PER_M, DISTANCE_MM, FACTOR, LENGTH_MM, MU_R, SECONDS,
-                                   THRESHOLD_HZ, add_coil_arguments, add_force_option, add_freq_option, add_json_option,
-                                   add_out_option, add_target_option, add_threshold_option)
+from coilshift.cli.options import (CONDUCTIVITY_S_PER_M, LENGTH_MM, MU_R, SECONDS, THRESHOLD_HZ, add_coil_arguments,
+                                   add_distances_option, add_force_option, add_freq_option, add_json_option,
+                                   add_noise_factor_option, add_old_spellings, add_out_option, add_threshold_option)
 
 ORDER = 61
 
@@ -18,44 +18,44 @@ def register(subparsers) -> None:
                     "target centre.")
     add_coil_arguments(p)
     t = p.add_argument_group("target (a sphere)")
-    add_target_option(t, "target description, e.g. 'steel:diameter_mm=12' or 'sigma=3.5e7,mu_r=1,diameter_mm=20'",
-                      metavar="SPEC")
+    t.add_argument("--sphere", metavar="SPEC",
+                   help="the sphere, e.g. 'steel:diameter_mm=12' or 'sigma=3.5e7,mu_r=1,diameter_mm=20'")
     t.add_argument("--material", metavar="NAME", help="material name (see docs/models.md)")
     t.add_argument("--conductivity-s-per-m", type=CONDUCTIVITY_S_PER_M, metavar="S", help="conductivity, S/m")
     t.add_argument("--mu-r", type=MU_R, metavar="M", help="relative permeability")
     t.add_argument("--diameter-mm", type=LENGTH_MM, metavar="D", help="sphere diameter")
     add_freq_option(p, "operating frequency (default: the coil's LC frequency with --cap-nf)")
-    p.add_argument("--distances-mm", type=DISTANCE_MM, nargs="+", metavar="Z",
-                   help="distances to tabulate (default: 0.2 to 4 coil radii)")
+    add_distances_option(p, "distances to tabulate (default: 0.2 to 4 coil radii)")
     th = p.add_mutually_exclusive_group()
     add_threshold_option(th, "smallest detectable |shift|, Hz")
     th.add_argument("--noise-hz", type=THRESHOLD_HZ, metavar="S",
-                    help="the oscillator's Allan deviation (Hz) at the reading time: threshold = "
-                         "SIGMAS x sqrt(2) x S (a reading minus its baseline)")
+                    help="the oscillator's Allan deviation (Hz) at the reading time: threshold = K x S "
+                         "(--noise-factor)")
     th.add_argument("--noise-log", metavar="RUN",
                     help="take that Allan deviation from a target-free frequency log at --tau-s")
     p.add_argument("--tau-s", type=SECONDS, default=1.0, help="reading (averaging) time for --noise-log (default 1 s)")
-    p.add_argument("--sigmas", type=FACTOR, default=3.0, help="threshold multiple of the noise (default 3)")
+    add_noise_factor_option(p, "the Allan deviation at the reading time (--noise-hz, or --noise-log at --tau-s)")
     add_out_option(p, "write prediction.csv, prediction.json and shift_vs_distance.png to a new folder",
                    metavar="DIR")
     add_force_option(p, "allow --out to be a folder that is not empty")
     add_json_option(p, "print one JSON object")
+    add_old_spellings(p, "target")
     p.set_defaults(func=run)
 
 
 def target_from_args(args):
-    """A TargetSpec from --target SPEC or the --material/--conductivity/--mu-r/--diameter options."""
+    """A TargetSpec from --sphere SPEC or the --material/--conductivity/--mu-r/--diameter options."""
     from coilshift.analysis.models.materials import find_material
     from coilshift.analysis.models.target import make_target, parse_target_spec
     from coilshift.logger.errors import InputError
 
     loose = (args.material, args.conductivity_s_per_m, args.mu_r, args.diameter_mm)
-    if args.target:
+    if args.sphere:
         if any(v is not None for v in loose):
-            raise InputError("target: give --target SPEC or the --material/--diameter-mm options, not both")
-        return parse_target_spec(args.target)
+            raise InputError("target: give --sphere SPEC or the --material/--diameter-mm options, not both")
+        return parse_target_spec(args.sphere)
     if args.diameter_mm is None:
-        raise InputError("target: give --target SPEC, or --diameter-mm with --material or "
+        raise InputError("target: give --sphere SPEC, or --diameter-mm with --material or "
                          "--conductivity-s-per-m and --mu-r")
     name, sigma, mu_r = "custom", args.conductivity_s_per_m, args.mu_r
     if args.material:
@@ -73,7 +73,7 @@ def target_from_args(args):
 
 
 def threshold_from_args(args) -> float | None:
-    """The detection threshold in Hz: given, or SIGMAS x sqrt(2) x the Allan deviation at tau."""
+    """The detection threshold in Hz: given, or K x the Allan deviation at tau (the rule of analyze)."""
     import math
 
     from coilshift.logger.errors import InputError
@@ -84,8 +84,8 @@ def threshold_from_args(args) -> float | None:
         return args.threshold_hz
     if args.noise_hz is None and args.noise_log is None:
         return None
-    if not (math.isfinite(args.sigmas) and args.sigmas > 0):
-        raise InputError(f"--sigmas {args.sigmas}: must be positive")
+    if not (math.isfinite(args.noise_factor) and args.noise_factor > 0):
+        raise InputError(f"--noise-factor {args.noise_factor}: must be positive")
     if args.noise_hz is not None:
         noise = args.noise_hz
     else:
@@ -101,8 +101,8 @@ def threshold_from_args(args) -> float | None:
         noise = noise_at_tau_hz(log.t_s, np.where(log.usable(), log.freq_hz, np.nan), args.tau_s)
     if not (math.isfinite(noise) and noise > 0):
         raise InputError(f"{args.noise_log or '--noise-hz'}: no usable noise figure ({noise})")
-    # a reading is a tau-mean minus an adjacent baseline tau-mean: its spread is sqrt(2) ADEV(tau)
-    return args.sigmas * math.sqrt(2.0) * noise
+    # the same rule as the calibration analysis (analysis.calibration.detection): K x ADEV(tau)
+    return args.noise_factor * noise
 
 
 def run(args) -> int:
@@ -116,8 +116,8 @@ def run(args) -> int:
 
     rep = analyse_coil(design_from_args(args))
     target = target_from_args(args)
-    if args.distances_mm is not None:
-        distances = np.asarray(args.distances_mm, float)
+    if args.distances is not None:
+        distances = np.asarray(args.distances, float)
     else:
         a = rep.mean_radius_mm
         distances = np.unique(np.round(a * np.geomspace(0.2, 4.0, 12), 1))

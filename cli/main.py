@@ -88,6 +88,12 @@ def main(argv: list[str] | None = None) -> int:
         args = parser.parse_args(argv)
     except SystemExit as exc:  # a refused option (one line already printed), --help, --version
         return exc.code if isinstance(exc.code, int) else 2
+    import shlex
+
+    import coilshift.analysis.report.html_page as page  # light: the standard library only
+
+    # reports name the command as it was typed (main() may be called with argv, not sys.argv)
+    page.COMMAND_LINE = shlex.join([PROG, *(sys.argv[1:] if argv is None else argv)])
     with handle_ending_signals(), guarded_stdout() as done:
         return _run(args, done)
 

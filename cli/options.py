@@ -25,7 +25,6 @@ SETTING_OPTIONS: dict[str, str] = {
     "max_seconds": "--seconds",
     "targets": "--target",
     "dwell_s": "--dwell",
-    "settle_s": "--settle",
 }
 
 
@@ -112,6 +111,7 @@ WIRE_MM = Bounded(0, 100, lo_open=True, unit="mm")
 TEMP_C = Bounded(-273.15, 1000, unit="degC")
 CONDUCTIVITY_S_PER_M = Bounded(0, 1e10, lo_open=True, unit="S/m")
 MU_R = Bounded(1e-3, 1e7)
+FALSE_PER_HOUR = Bounded(1e-6, 3600, unit="per hour")
 TIMER_FREQ_HZ = Bounded(1e-3, 1e7, unit="Hz")  # what a 555 astable can be asked for
 
 _AWG = re.compile(r"^\s*(?:[0-9]{1,2}|0{2,4}|[1-4]/0)\s*(?:awg)?\s*$", re.IGNORECASE)
@@ -132,10 +132,9 @@ def awg_text(text: str) -> str:
 # ----- output folder and output form -------------------------------------------------------------
 
 def add_out_option(parser, help: str, *, required: bool = False, metavar: str | None = None,
-                   default: str | None = None, long: str = "--out") -> argparse.Action:
-    """``-o/--out`` (``long="--output"`` for analyze): the folder a command writes."""
-    return parser.add_argument("-o", long, required=required, default=default, metavar=metavar, help=help)
-
+                   default: str | None = None) -> argparse.Action:
+    """``-o/--out``: the folder a command writes (every command that writes one)."""
+    return parser.add_argument("-o", "--out", required=required, default=default, metavar=metavar, help=help)
 
 
 def add_run_folder_option(parser) -> argparse.Action:
@@ -236,10 +235,96 @@ def _reference(text: str) -> tuple[str, str]:
     return name, kind
 
 
-def add_settle_option(parser, help: str, *, metavar: str, type: Bounded = SETTLE_S, default: float | None = None,
-                      dest: str | None = None) -> argparse.Action:
-    """``--settle``: settling seconds (calibrate, analyze) or the warm-up drift limit (stability)."""
-    return parser.add_argument("--settle", type=type, default=default, metavar=metavar, dest=dest, help=help)
+def add_settle_option(parser, help: str) -> argparse.Action:
+    """``--settle-s S``: seconds waited after each move before a stretch is recorded (calibrate)."""
+    return parser.add_argument("--settle-s", type=SETTLE_S, default=2.0, metavar="S", help=help)
+
+
+def add_noise_factor_option(parser, what: str) -> argparse.Action:
+    """``--noise-factor K``: the one default threshold rule of every command that sets a detection
+    threshold from noise: threshold = K x the Allan deviation at the reading time (``what``)."""
+    from coilshift.analysis.calibration.defaults import DEFAULT_K
+
+    return parser.add_argument(
+        "--noise-factor", type=FACTOR, default=DEFAULT_K, metavar="K",
+        help=f"threshold = K x {what} (default {DEFAULT_K:g}: about 4 standard deviations of a reading "
+             "minus its bracketing baselines, ~4e-5 false alarms per reading)")
+
+
+class Distances(tuple):
+    """``--distances``: distances in mm, with the unit they were written in (``unit``)."""
+
+    unit = "mm"
+
+
+def distance_list(text: str) -> Distances:
+    """``--distances LIST``: comma-separated distances from the coil face, in mm unless a unit is
+    written (``10,20,40`` = mm; ``1,2,4cm`` or ``1cm,2cm,4cm``; ``0.5,1,2in``). One unit for the
+    whole list. Values are returned in mm, with the unit kept for display."""
+    from coilshift.logger.capture.guide import UNITS_MM, parse_distances
+    from coilshift.logger.errors import InputError
+
+    items = [p.strip() for p in str(text).split(",")]
+    units = {next((u for u in UNITS_MM if p.lower().endswith(u)), "") for p in items if p}
+    written = units - {""}
+    if len(written) > 1:
+        raise argparse.ArgumentTypeError(f"one unit for the whole list, got {', '.join(sorted(written))}")
+    unit = written.pop() if written else "mm"
+    body = ",".join(p[:-len(unit)].strip() if p.lower().endswith(unit) else p for p in items)
+    try:
+        out = Distances(parse_distances(body, unit))
+    except InputError as exc:
+        raise argparse.ArgumentTypeError(str(exc).split(": ", 1)[-1]) from None
+    out.unit = unit
+    return out
+
+
+def add_distances_option(parser, help: str, *, required: bool = False) -> argparse.Action:
+    """``--distances LIST[UNIT]`` (calibrate, target): see :func:`distance_list`."""
+    return parser.add_argument("--distances", type=distance_list, required=required, metavar="LIST",
+                               help=help + " (comma-separated, mm unless the list ends in cm or in: "
+                                           "10,20,40 or 1,2,4cm)")
+
+
+# ----- old spellings, kept one release as hidden aliases ----------------------------------------
+
+class _OldSpelling(argparse.Action):
+    """A hidden old spelling of an option: stores into the new option's ``dest`` (through
+    ``convert``) and says on stderr what to type instead."""
+
+    def __init__(self, option_strings, dest, new: str = "", convert=None, **kw):
+        self.new, self.convert = new, convert
+        super().__init__(option_strings, dest, **kw)
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        import sys
+
+        print(f"coilshift: note: {option_string} is now {self.new}; the old spelling goes in the next release",
+              file=sys.stderr)
+        setattr(namespace, self.dest, self.convert(values) if self.convert else values)
+
+
+#: old spelling -> (command, the option now, dest, nargs, type, convert)
+OLD_SPELLINGS: dict[tuple[str, str], tuple] = {
+    ("analyze", "--output"): ("-o/--out", "out", None, None, None),
+    ("analyze", "--settle"): ("--trim-s", "trim_s", None, SETTLE_S, None),
+    ("calibrate", "--report"): ("--analysis-out", "analysis_out", None, None, None),
+    ("calibrate", "--settle"): ("--settle-s", "settle_s", None, SETTLE_S, None),
+    ("calibrate", "--unit"): ("a unit at the end of --distances (10,20,40cm)", "old_unit", None, None, None),
+    ("stability", "--settle"): ("--settled-hz-per-min", "settled_hz_per_min", None, DRIFT_HZ_PER_MIN, None),
+    ("target", "--distances-mm"): ("--distances", "distances", "+", DISTANCE_MM, Distances),
+    ("target", "--target"): ("--sphere", "sphere", None, None, None),
+    ("target", "--sigmas"): ("--noise-factor (K = SIGMAS x sqrt 2)", "noise_factor", None, FACTOR,
+                             lambda s: s * math.sqrt(2.0)),
+}
+
+
+def add_old_spellings(parser, command: str) -> None:
+    """Add the hidden old spellings of ``command``'s options (:data:`OLD_SPELLINGS`)."""
+    for (cmd, old), (new, dest, nargs, type_, convert) in OLD_SPELLINGS.items():
+        if cmd == command:
+            parser.add_argument(old, action=_OldSpelling, new=new, convert=convert, dest=dest, nargs=nargs,
+                                type=type_, default=argparse.SUPPRESS, help=argparse.SUPPRESS)
 
 
 def add_threshold_option(parser, help: str, *, type: Bounded = THRESHOLD_HZ) -> argparse.Action:
@@ -258,33 +343,45 @@ def add_target_option(parser, help: str, *, metavar: str, action: str | None = N
     return parser.add_argument("--target", action=action, required=required, metavar=metavar, help=help)
 
 
-def add_analysis_options(p: argparse.ArgumentParser, settle: bool = True) -> None:
-    """Options shared by ``analyze`` and ``calibrate`` (which analyses its run at the end and has
-    its own ``--settle``, applied while recording, so it passes ``settle=False``).
+def add_polarity_option(parser) -> argparse.Action:
+    """``--polarity``: which way the frequency moves for a ferrous target (analyze, calibrate, events)."""
+    return parser.add_argument("--polarity", choices=("normal", "inverted"), default="normal",
+                               help="normal: frequency down = inductance up = ferrous (LC oscillator read "
+                                    "directly); inverted: prescaler/aliasing/other topology")
+
+
+def add_false_rate_option(parser) -> argparse.Action:
+    """``--false-per-hour R``: the event detector's false-event rate on quiet baseline (events, capture)."""
+    from coilshift.logger.events.crossings import DEFAULT_FALSE_PER_HOUR
+
+    return parser.add_argument("--false-per-hour", type=FALSE_PER_HOUR, default=DEFAULT_FALSE_PER_HOUR, metavar="R",
+                               help="event detector: at most R false events per hour of quiet baseline, on "
+                                    f"average (default {DEFAULT_FALSE_PER_HOUR:g}); sets its detection level")
+
+
+def add_analysis_options(p: argparse.ArgumentParser, trim: bool = True) -> None:
+    """Options shared by ``analyze`` and ``calibrate`` (which analyses its run at the end; its
+    stretches start settled, so it passes ``trim=False``).
 
     Turned into keyword arguments of ``analyse_run`` by
     :func:`coilshift.cli.analysis_args.analysis_kwargs`.
     """
-    from coilshift.analysis.calibration.defaults import (DEFAULT_BOOTSTRAP, DEFAULT_K, DEFAULT_PLACEMENT_MM,
-                                                          DEFAULT_SEED, DEFAULT_SETTLE_S)
+    from coilshift.analysis.calibration.defaults import (DEFAULT_BOOTSTRAP, DEFAULT_PLACEMENT_MM, DEFAULT_SEED,
+                                                          DEFAULT_SETTLE_S)
 
     g = p.add_argument_group("analysis")
-    add_threshold_option(g, "detection threshold in Hz (default: K x the baselines' Allan deviation at the dwell)",
-                         type=THRESHOLD_HZ)
-    g.add_argument("--noise-factor", type=FACTOR, default=DEFAULT_K, metavar="K",
-                   help=f"threshold = K x noise at the dwell time (default {DEFAULT_K:g}: about 4 standard "
-                        "deviations of a bracketed reading, ~4e-5 false alarms per reading)")
-    if settle:
-        add_settle_option(g, f"settling seconds dropped at each end of every stretch, never more than a quarter "
-                             f"of it (default {DEFAULT_SETTLE_S:g}; 0 for runs made by 'calibrate', which start "
-                             "each stretch settled)",
-                          type=SETTLE_S, default=None, metavar="S", dest="analysis_settle_s")
+    add_threshold_option(g, "detection threshold in Hz (default: K x the baselines' Allan deviation at the "
+                            "dwell time, --noise-factor)", type=THRESHOLD_HZ)
+    add_noise_factor_option(g, "the baselines' Allan deviation at the dwell time")
+    if trim:
+        g.add_argument("--trim-s", type=SETTLE_S, default=None, metavar="S",
+                       help=f"settling seconds dropped at each end of every stretch, never more than a quarter "
+                            f"of it (default {DEFAULT_SETTLE_S:g}; 0 for runs made by 'calibrate', which start "
+                            "each stretch settled)")
     add_coil_file_option(g, "coil description (JSON): the fits use its finite-winding law; needed for --target-model")
     g.add_argument("--target-model", type=_target_model, action="append", default=[], metavar="NAME=SPEC",
                    help="predicted curve for target NAME, e.g. coin=copper:diameter_mm=20 (repeatable)")
-    g.add_argument("--polarity", choices=("normal", "inverted"), default="normal",
-                   help="normal: frequency down = inductance up = ferrous (LC oscillator read directly); "
-                        "inverted: prescaler/aliasing/other topology")
+    add_polarity_option(g)
     g.add_argument("--reference-target", type=_reference, action="append", default=[], metavar="NAME=KIND",
                    help="a target of known kind (ferrous|non-ferrous) to check the polarity (repeatable)")
     g.add_argument("--fit-offset", action="store_true",

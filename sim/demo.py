@@ -24,7 +24,6 @@ analysis its plots; this module only adds the top-level summary page.
 
 from __future__ import annotations
 
-import html
 import json
 import math
 import os
@@ -172,10 +171,9 @@ def run_demo(out_dir: str | os.PathLike, force: bool = False,
     """
     from coilshift.analysis.calibration.run import analyse_run
     from coilshift.analysis.models.coil import analyse_coil, design_from_dict
-    from coilshift.logger.runfolder.reader import read_log
-    from coilshift.analysis.report.stability_outputs import write_stability_outputs
     from coilshift.analysis.report.calibration_outputs import write_outputs
-    from coilshift.analysis.stability.analyse import analyse_stability
+    from coilshift.analysis.report.html_page import provenance
+    from coilshift.sim.demo_report import report_html
     from coilshift.analysis.models.target import parse_target_spec, predicted_range_mm
     from coilshift.logger.runfolder.atomic import to_jsonable
     from coilshift.logger.runfolder.folders import new_output_dir
@@ -206,14 +204,14 @@ def run_demo(out_dir: str | os.PathLike, force: bool = False,
         say(f"analysing the {key} calibration run")
         results[key] = analyse_run(out / "runs" / key, coil=reports[key], target_models=models,
                                    reference=REFERENCE, name=key)
-    write_outputs([results[k] for k in COILS], out / "calibration")
+    write_outputs([results[k] for k in COILS], out / "calibration", provenance([out / "runs" / k for k in COILS]))
 
     say("analysing the stability run")
-    slog = read_log(out / "runs" / "B-200-stability", columns=("flags",))
-    stab = analyse_stability(slog.t_s, slog.freq_hz, slog.usable(), source="B-200 stability run",
-                             frame_s=slog.meta["tracker"]["frame_ms"] / 1000.0)  # marks taus inside one frame
-    (out / "stability").mkdir(exist_ok=True)
-    write_stability_outputs(stab, out / "stability")
+    stab = _stability(out)
+    say("finding the passes of a hand-pass session (no markers)")
+    from coilshift.sim.demo_passes import hand_pass_session
+
+    passes = hand_pass_session(out)
 
     rows: list[DemoRow] = []
     for key, res in results.items():
@@ -231,18 +229,41 @@ def run_demo(out_dir: str | os.PathLike, force: bool = False,
         "calibration_report": str(out / "calibration" / "report.html"),
         "thresholds_hz": {k: r.threshold_hz for k, r in results.items()},
         "noise_hz": {k: r.noise_hz for k, r in results.items()},
-        "stability": {"oadev_hz_at_1s": _at_tau(stab, 1.0), "drift_hz_per_min": stab.drift.rate_hz_per_min,
+        "stability": {"oadev_hz_at_1s": _at_tau(stab, 1.0), **_drift(stab.drift),
                       "warmup_s": stab.warmup.warmup_s if stab.warmup.settled else None},
         "rows": [dict(vars(r), true_inside=r.true_inside) for r in rows],
         "all_classes_right": all(r.expected == r.measured for r in rows),
         "all_true_ranges_inside": all(r.true_inside is not False for r in rows),
         "range_gain_b200_over_a150": range_gains([vars(r) for r in rows]),
         "polarity_warnings": [w for r in results.values() for w in r.warnings if "polarity" in w.lower()],
+        "hand_passes": passes,
         "elapsed_s": elapsed,
     }
-    write_text_atomic(out / "report.html", _report_html(summary, rows, results))
+    write_text_atomic(out / "report.html", report_html(summary, rows, results, out))
     write_text_atomic(out / "summary.json", json.dumps(to_jsonable(summary), indent=2, allow_nan=False) + "\n")
     return summary
+
+
+def _stability(out: Path):
+    """Analyse the demo's stability run and write its outputs (report included)."""
+    from coilshift.analysis.report.html_page import provenance
+    from coilshift.analysis.report.stability_outputs import write_stability_outputs
+    from coilshift.analysis.stability.analyse import analyse_stability
+    from coilshift.logger.runfolder.reader import read_log
+
+    slog = read_log(out / "runs" / "B-200-stability", columns=("flags",))
+    stab = analyse_stability(slog.t_s, slog.freq_hz, slog.usable(), source="B-200 stability run",
+                             frame_s=slog.meta["tracker"]["frame_ms"] / 1000.0)  # marks taus inside one frame
+    (out / "stability").mkdir(exist_ok=True)
+    write_stability_outputs(stab, out / "stability", prov=provenance([out / "runs" / "B-200-stability"]))
+    return stab
+
+
+def _drift(drift) -> dict:
+    """The settled drift and its standard uncertainty (None when not determined)."""
+    ok = drift.determined
+    return {"drift_hz_per_min": drift.rate_hz_per_min if ok else None,
+            "drift_u_hz_per_min": drift.u_rate_hz_per_min if ok else None}
 
 
 def _at_tau(stab, tau_s: float) -> float | None:
@@ -267,65 +288,3 @@ def summary_table(summary: dict) -> str:
         lines.append("")
         lines.append("B-200 range / A-150 range: " + ", ".join(f"{k} {v:.2f}" for k, v in gains.items()))
     return "\n".join(lines)
-
-
-_CSS = ("body{font-family:sans-serif;max-width:1000px;margin:2em auto;line-height:1.4}"
-        "table{border-collapse:collapse}td,th{border:1px solid #bbb;padding:3px 8px;text-align:left}"
-        ".bad{color:#b00}.note{background:#fff6d6;padding:0.6em;border:1px solid #e0c060}"
-        "img{max-width:100%;border:1px solid #ddd}")
-
-
-def _report_html(summary: dict, rows: list[DemoRow], results: dict) -> str:
-    e = html.escape
-    thr = ", ".join(f"{k}: {v:.3g} Hz (noise {summary['noise_hz'][k]:.2g} Hz)" for k, v in summary["thresholds_hz"].items())
-    trs = []
-    for r in rows:
-        ok = r.expected == r.measured
-        ci = f" ({r.range_ci_mm[0]:.0f}-{r.range_ci_mm[1]:.0f})" if r.range_ci_mm else ""
-        inside = {None: "-", True: "yes", False: "NO"}[r.true_inside]
-        trs.append(f"<tr><td>{e(r.coil)}</td><td>{e(r.target)}</td><td>{e(r.expected)}</td>"
-                   f"<td class='{'' if ok else 'bad'}'>{e(r.measured)}</td><td>{_fmt_mm(r.range_mm)}{ci}</td>"
-                   f"<td>{e(r.range_basis or '-')}</td><td>{_fmt_mm(r.design_mm)}</td><td>{_fmt_mm(r.true_mm)}</td>"
-                   f"<td class='{'bad' if r.true_inside is False else ''}'>{inside}</td></tr>")
-    st = summary["stability"]
-    warm = "did not settle" if st["warmup_s"] is None else f"{st['warmup_s']:.0f} s"
-    oadev = "-" if st["oadev_hz_at_1s"] is None else f"{1000 * st['oadev_hz_at_1s']:.2f} mHz"
-    warnings = sorted({w for res in results.values() for w in res.warnings})
-    wl = "".join(f"<li>{e(w)}</li>" for w in warnings) or "<li>none</li>"
-    return f"""<!DOCTYPE html>
-<html><head><meta charset="utf-8"><title>coilshift demo: qualifying coil B-200</title><style>{_CSS}</style></head>
-<body>
-<h1>coilshift demo: qualifying search coil B-200 against A-150</h1>
-<p class="note"><b>Synthetic data.</b> Every recording here was made by the coilshift simulator
-(<code>recordings/*/script.json</code>, with the truth in <code>truth.json</code>); no detector was involved.
-The simulated bench differs from the design on purpose (cast aluminium ball, less permeable steel,
-capacitors a few percent off), as a real bench does.</p>
-<h2>Calls and detection ranges</h2>
-<p>Threshold per coil: {e(thr)}. "design" is the range the coil and target models predict from the
-coil files and handbook materials; "true" is the simulated bench's exact range at the same threshold;
-"truth" is the call the simulated response deserves. "basis": measured (interpolated between two
-calibration points) or extrapolated (past the farthest point, from a fit that passed its chi-squared
-test). The interval carries the point errors, the placement tolerance, the threshold's noise estimate
-and the interpolation model (see the calibration report for each one's share).</p>
-<table><tr><th>coil</th><th>target</th><th>truth</th><th>measured</th><th>range mm (95% CI)</th>
-<th>basis</th><th>design mm</th><th>true mm</th><th>true in CI</th></tr>{''.join(trs)}</table>
-<p>"-": the range is undefined (no reading reaches the threshold, or the target gives no response).
-B-200 range over A-150 range: {e(", ".join(f"{k} {v:.2f}" for k, v in summary["range_gain_b200_over_a150"].items()))}.</p>
-<p>Full calibration report with curves, residuals, time series and the comparison table:
-<a href="calibration/report.html">calibration/report.html</a>.</p>
-<img src="calibration/compare.png" alt="shift against distance for both coils">
-<h2>Stability of B-200</h2>
-<p>Overlapping Allan deviation at 1 s: {oadev}; drift {st['drift_hz_per_min']:+.3g} Hz/min;
-warm-up: {warm}.</p>
-<img src="stability/sigma_tau.png" alt="Allan deviation against averaging time">
-<img src="stability/drift.png" alt="frequency against time with drift line">
-<h2>Warnings from the analysis</h2><ul>{wl}</ul>
-<h2>Before you connect real hardware</h2><p class="note">{e(CAUTION)}</p>
-<h2>Files</h2>
-<ul><li><code>recordings/</code>: simulated WAV files, markers, truth and scripts</li>
-<li><code>runs/</code>: the tracked run folders (log.csv, run.json, markers.csv)</li>
-<li><code>coils/</code>: the two coil descriptions (as designed)</li>
-<li><code>calibration/</code>, <code>stability/</code>: analysis outputs</li></ul>
-<p>Made in {summary['elapsed_s']:.0f} s by <code>coilshift demo</code>.</p>
-</body></html>
-"""

@@ -51,6 +51,11 @@ from coilshift.logger.textfile import read_json
 
 ENCODINGS = ("wav", "flac")
 BITS = (16, 24)
+#: the largest magnitudes a script may give for a frequency (a shift, drift or noise level), a
+#: time and a length: far beyond any bench, and small enough that nothing overflows
+MAX_HZ = 1e6
+MAX_S = 1e8
+MAX_MM = 1e6
 
 
 @dataclass(frozen=True)
@@ -222,17 +227,17 @@ def _oscillator(c: _Checker, d: dict) -> Oscillator:
         c.fail(f"{w}.duty", "must be below 1 (a duty of 1 is a constant level, no tone)")
     return Oscillator(
         freq_hz=freq, coil=coil, duty=duty,
-        edge_tau_us=c.num(d, "edge_tau_us", w, 0.0, lo=0.0),
+        edge_tau_us=c.num(d, "edge_tau_us", w, 0.0, lo=0.0, hi=1e6),
         prescaler=c.num(d, "prescaler", w, 1, lo=1, hi=65536, integer=True),
-        warmup_hz=c.num(d, "warmup_hz", w, 0.0),
-        warmup_tau_s=c.num(d, "warmup_tau_s", w, 30.0, lo=0.0, lo_open=True),
-        tempco_hz_per_c=c.num(d, "tempco_hz_per_c", w, 0.0),
+        warmup_hz=c.num(d, "warmup_hz", w, 0.0, lo=-MAX_HZ, hi=MAX_HZ),
+        warmup_tau_s=c.num(d, "warmup_tau_s", w, 30.0, lo=0.0, lo_open=True, hi=MAX_S),
+        tempco_hz_per_c=c.num(d, "tempco_hz_per_c", w, 0.0, lo=-MAX_HZ, hi=MAX_HZ),
         start_c=c.num(temp, "start_c", tw, 21.0, lo=-60.0, hi=150.0),
-        rate_c_per_h=c.num(temp, "rate_c_per_h", tw, 0.0),
-        swing_c=c.num(temp, "swing_c", tw, 0.0, lo=0.0),
-        swing_period_s=c.num(temp, "swing_period_s", tw, 600.0, lo=0.0, lo_open=True),
-        white_fm_hz=c.num(d, "white_fm_hz", w, 0.0, lo=0.0),
-        random_walk_hz=c.num(d, "random_walk_hz", w, 0.0, lo=0.0),
+        rate_c_per_h=c.num(temp, "rate_c_per_h", tw, 0.0, lo=-1e4, hi=1e4),
+        swing_c=c.num(temp, "swing_c", tw, 0.0, lo=0.0, hi=1e3),
+        swing_period_s=c.num(temp, "swing_period_s", tw, 600.0, lo=0.0, lo_open=True, hi=MAX_S),
+        white_fm_hz=c.num(d, "white_fm_hz", w, 0.0, lo=0.0, hi=MAX_HZ),
+        random_walk_hz=c.num(d, "random_walk_hz", w, 0.0, lo=0.0, hi=MAX_HZ),
     )
 
 
@@ -269,8 +274,9 @@ def _targets(c: _Checker, d: dict) -> dict[str, TargetDef]:
             c.fail(w, "expected a JSON object")
         if "peak_shift_hz" in spec:
             c.unknown(spec, {"peak_shift_hz", "coil_radius_mm"}, w)
-            out[name] = TargetDef(name, peak_shift_hz=c.num(spec, "peak_shift_hz", w),
-                                  coil_radius_mm=c.num(spec, "coil_radius_mm", w, lo=0.0, lo_open=True))
+            out[name] = TargetDef(name, peak_shift_hz=c.num(spec, "peak_shift_hz", w, lo=-MAX_HZ, hi=MAX_HZ),
+                                  coil_radius_mm=c.num(spec, "coil_radius_mm", w, lo=0.0, lo_open=True,
+                                                       hi=MAX_MM))
         elif "material" in spec:
             out[name] = TargetDef(name, spec=dict(spec))
         else:
@@ -282,7 +288,7 @@ def _steps(c: _Checker, d: dict, targets: dict) -> tuple[list[Step], float]:
     w = "session"
     c.unknown(d, {"move_s", "hand_hz", "steps"}, w)
     move_s = c.num(d, "move_s", w, 0.6, lo=0.0, hi=60.0)
-    hand = c.num(d, "hand_hz", w, 0.0)
+    hand = c.num(d, "hand_hz", w, 0.0, lo=-MAX_HZ, hi=MAX_HZ)
     raw = d.get("steps")
     if not isinstance(raw, list) or not raw:
         c.fail(w, "'steps' must be a non-empty list")
@@ -301,9 +307,9 @@ def _steps(c: _Checker, d: dict, targets: dict) -> tuple[list[Step], float]:
                 c.fail(spw, "'targets' must be a non-empty list of target names")
             if not isinstance(dists, list) or not dists:
                 c.fail(spw, "'distances_mm' must be a non-empty list of numbers")
-            dl = [c.num({"distances_mm": v}, "distances_mm", spw, lo=0.0) for v in dists]
-            hold = c.num(sp, "hold_s", spw, 3.0, lo=0.0, lo_open=True)
-            base = c.num(sp, "baseline_s", spw, 2.0, lo=0.0, lo_open=True)
+            dl = [c.num({"distances_mm": v}, "distances_mm", spw, lo=0.0, hi=MAX_MM) for v in dists]
+            hold = c.num(sp, "hold_s", spw, 3.0, lo=0.0, lo_open=True, hi=MAX_S)
+            base = c.num(sp, "baseline_s", spw, 2.0, lo=0.0, lo_open=True, hi=MAX_S)
             if not flat or flat[-1][0] != BASELINE:
                 flat.append((BASELINE, math.nan, base, None))
             for n in names:
@@ -315,8 +321,8 @@ def _steps(c: _Checker, d: dict, targets: dict) -> tuple[list[Step], float]:
         tname = item.get("target")
         if not isinstance(tname, str) or not tname:
             c.fail(sw, "missing 'target' (a target name or 'baseline')")
-        dist = math.nan if tname == BASELINE else c.num(item, "distance_mm", sw, lo=0.0)
-        hold = c.num(item, "hold_s", sw, lo=0.0, lo_open=True)
+        dist = math.nan if tname == BASELINE else c.num(item, "distance_mm", sw, lo=0.0, hi=MAX_MM)
+        hold = c.num(item, "hold_s", sw, lo=0.0, lo_open=True, hi=MAX_S)
         mv = c.num(item, "move_s", sw, lo=0.0, hi=60.0) if "move_s" in item else None
         flat.append((tname, dist, hold, mv))
     steps = []
@@ -343,8 +349,8 @@ def parse_script(obj: Any, name: str = "script") -> Script:
     thr = truth.get("thresholds_hz", [0.5])
     if not isinstance(thr, list) or not thr:
         c.fail("truth.thresholds_hz", "expected a non-empty list of numbers")
-    thr_t = tuple(c.num({"t": v}, "t", "truth.thresholds_hz", lo=0.0, lo_open=True) for v in thr)
-    floor = c.num(truth, "class_floor_hz", "truth", 0.1, lo=0.0)
+    thr_t = tuple(c.num({"t": v}, "t", "truth.thresholds_hz", lo=0.0, lo_open=True, hi=MAX_HZ) for v in thr)
+    floor = c.num(truth, "class_floor_hz", "truth", 0.1, lo=0.0, hi=MAX_HZ)
     if any(t.spec is not None for t in targets.values()) and osc.coil is None:
         c.fail("targets", "physical targets (with 'material') need the oscillator's 'coil'")
     out_hz = osc.freq_hz / osc.prescaler
@@ -354,7 +360,7 @@ def parse_script(obj: Any, name: str = "script") -> Script:
     script = Script(oscillator=osc, recording=rec, targets=targets, steps=steps, seed=seed,
                     hand_hz=hand, thresholds_hz=thr_t, class_floor_hz=floor, name=name, raw=obj)
     if script.duration_s * rec.sample_rate_hz > 2 ** 31:
-        c.fail("session", f"too long ({script.duration_s:.0f} s at {rec.sample_rate_hz:g} Hz)")
+        c.fail("session", f"too long ({script.duration_s:.4g} s at {rec.sample_rate_hz:g} Hz)")
     # build every target's response now, so a bad physical spec fails before any audio is written
     from coilshift.sim.response import build_responses
 

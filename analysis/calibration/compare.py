@@ -7,6 +7,7 @@ target and run; the overlay of curves is drawn by :mod:`coilshift.analysis.repor
 from __future__ import annotations
 
 from dataclasses import dataclass
+from pathlib import Path
 
 from coilshift.analysis.calibration.run import CalibrationResult
 
@@ -30,19 +31,33 @@ def unique_names(results: list[CalibrationResult]) -> list[str]:
     """Short run names (folder names), made unique with a numeric suffix where they collide.
 
     A suffix never produces a name another run already has: ``a/run``, ``b/run`` and ``c/run-2``
-    are named ``run``, ``run-3`` and ``run-2`` (each run keeps its own outputs and column).
+    are named ``run``, ``run-3`` and ``run-2`` (each run keeps its own outputs and column). Names
+    are compared ignoring case, as the file systems of macOS and Windows compare them: ``Run`` and
+    ``run`` would be one output folder there.
     """
-    taken = {r.name for r in results}
+    own = [_folder_name(r) for r in results]
+    taken = {n.casefold() for n in own}
     used: set[str] = set()
     out = []
-    for r in results:
-        name, k = r.name, 1
-        while name in used or (name != r.name and name in taken):  # taken: another run's own name
+    for base in own:
+        name, k = base, 1
+        # taken: another run's own name
+        while name.casefold() in used or (name != base and name.casefold() in taken):
             k += 1
-            name = f"{r.name}-{k}"
-        used.add(name)
+            name = f"{base}-{k}"
+        used.add(name.casefold())
         out.append(name)
     return out
+
+
+def _folder_name(result: CalibrationResult) -> str:
+    """The run's name as one plain folder name: a run given as ``.`` or ``..`` is named after the
+    folder it is (its outputs would otherwise land beside the others', or outside the output
+    folder altogether)."""
+    name = result.name
+    if name in ("", ".", "..") or "/" in name or "\\" in name:
+        name = Path(result.source).resolve().name or "run"
+    return name
 
 
 def compare_runs(results: list[CalibrationResult], names: list[str] | None = None) -> list[ComparisonRow]:

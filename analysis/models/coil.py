@@ -137,6 +137,12 @@ class CoilReport:
         return out
 
 
+#: tuning capacitors, lead lengths and turns a description may give (the options' ranges)
+CAP_RANGE_NF = (1e-6, 1e9)
+MAX_LEAD_MM = 1e6
+MAX_TURNS = 1e6
+
+
 def _positive(value, what: str, where: str, allow_zero: bool = False) -> float:
     try:
         x = float(value)
@@ -150,8 +156,8 @@ def _positive(value, what: str, where: str, allow_zero: bool = False) -> float:
 def check_design(design: CoilDesign, where: str = "coil") -> wiremod.WireSpec | None:
     """Refuse impossible geometry with an InputError naming ``where``; return the resolved wire."""
     turns = _positive(design.turns, "turns", where)
-    if turns < 1:
-        raise InputError(f"{where}: turns must be at least 1, got {design.turns!r}")
+    if not 1 <= turns <= MAX_TURNS:
+        raise InputError(f"{where}: turns must be from 1 to {MAX_TURNS:g}, got {design.turns!r}")
     inner = _positive(design.inner_diameter_mm, "inner_diameter_mm", where)
     length = _positive(design.length_mm, "length_mm", where)
     depth = _positive(design.depth_mm, "depth_mm", where, allow_zero=True)
@@ -161,8 +167,13 @@ def check_design(design: CoilDesign, where: str = "coil") -> wiremod.WireSpec | 
     if not (math.isfinite(temp) and -200.0 <= temp <= 250.0):
         raise InputError(f"{where}: temp_c must be between -200 and 250 degC, got {design.temp_c!r}")
     if design.cap_nf is not None:
-        _positive(design.cap_nf, "cap_nf", where)
-    _positive(design.lead_length_mm, "lead_length_mm", where, allow_zero=True)
+        cap = _positive(design.cap_nf, "cap_nf", where)
+        if not CAP_RANGE_NF[0] <= cap <= CAP_RANGE_NF[1]:  # 1 fF to 1 F: the --cap-nf option's range
+            raise InputError(f"{where}: cap_nf must be from {CAP_RANGE_NF[0]:g} to {CAP_RANGE_NF[1]:g} nF, "
+                             f"got {design.cap_nf!r}")
+    if _positive(design.lead_length_mm, "lead_length_mm", where, allow_zero=True) > MAX_LEAD_MM:
+        raise InputError(f"{where}: lead_length_mm must be at most {MAX_LEAD_MM:g} (1 km), "
+                         f"got {design.lead_length_mm!r}")
     if design.awg is None and design.wire_diameter_mm is None:
         if design.outer_wire_diameter_mm is not None:
             raise InputError(f"{where}: outer_wire_diameter_mm needs awg or wire_diameter_mm")

@@ -60,6 +60,10 @@ _KEYS = {"diameter_mm": "diameter_mm", "d_mm": "diameter_mm", "sigma": "conducti
          "conductivity_s_per_m": "conductivity_s_per_m", "mu_r": "mu_r", "name": "name"}
 
 
+#: the largest sphere modelled, mm (the --diameter-mm option's range)
+MAX_DIAMETER_MM = 1e5
+
+
 def make_target(name: str, diameter_mm, conductivity_s_per_m, mu_r, where: str = "target") -> TargetSpec:
     """A checked TargetSpec (diameter > 0, sigma >= 0, mu_r > 0), InputError otherwise."""
     def num(v, what):
@@ -74,8 +78,8 @@ def make_target(name: str, diameter_mm, conductivity_s_per_m, mu_r, where: str =
     d = num(diameter_mm, "diameter_mm")
     s = num(conductivity_s_per_m, "sigma")
     m = num(mu_r, "mu_r")
-    if d <= 0:
-        raise InputError(f"{where}: diameter_mm must be positive, got {diameter_mm!r}")
+    if d <= 0 or d > MAX_DIAMETER_MM:  # beyond 100 m the response arithmetic overflows; no bench holds one
+        raise InputError(f"{where}: diameter_mm must be above 0 and at most {MAX_DIAMETER_MM:g}, got {diameter_mm!r}")
     if s < 0 or s > 1e9:
         raise InputError(f"{where}: sigma must be between 0 and 1e9 S/m, got {conductivity_s_per_m!r}")
     if m <= 0 or m > 1e6:

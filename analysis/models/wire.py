@@ -137,8 +137,8 @@ def wire_spec(awg=None, wire_diameter_mm: float | None = None, insulation: str =
         outer = bare + insulation_build_mm(bare, insulation)
     else:
         outer = float(outer_diameter_mm)
-        if not (math.isfinite(outer) and outer >= bare):
+        if not (math.isfinite(outer) and bare <= outer <= 100.0):  # 100 mm: the option's range
             raise InputError(f"wire outer diameter {outer_diameter_mm} mm: must be at least the bare "
-                             f"diameter ({bare:.4g} mm)")
+                             f"diameter ({bare:.4g} mm) and at most 100 mm")
     resistivity_ohm_m(20.0, conductor)  # validates the conductor name
     return WireSpec(bare, outer, conductor, n, insulation)

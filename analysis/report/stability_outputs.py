@@ -1,6 +1,7 @@
-"""Stability outputs: the sigma(tau) and drift plots, the per-tau table (CSV) and the summary (JSON).
+"""Stability outputs: the sigma(tau) and drift plots, the per-tau table (CSV), the summary (JSON)
+and the one-file HTML report.
 
-``coilshift stability -o`` and the demo write the same four files through
+``coilshift stability -o`` and the demo write the same five files through
 :func:`write_stability_outputs`, each atomically: a finished file appears whole or not at all.
 """
 
@@ -20,6 +21,7 @@ SIGMA_TAU_PNG = "sigma_tau.png"
 DRIFT_PNG = "drift.png"
 TABLE_CSV = "stability.csv"
 SUMMARY_JSON = "stability.json"
+REPORT_HTML = "report.html"
 
 
 def stability_csv(res: StabilityResult) -> str:
@@ -44,8 +46,9 @@ def stability_csv(res: StabilityResult) -> str:
 
 
 def write_stability_outputs(result: StabilityResult, out_dir: str | os.PathLike,
-                            summary: dict | None = None) -> list[Path]:
-    """Write ``sigma_tau.png``, ``drift.png``, ``stability.csv`` and ``stability.json`` into ``out_dir``.
+                            summary: dict | None = None, prov=None, name_of=str) -> list[Path]:
+    """Write ``sigma_tau.png``, ``drift.png``, ``stability.csv``, ``stability.json`` and
+    ``report.html`` into ``out_dir``.
 
     Parameters
     ----------
@@ -53,15 +56,21 @@ def write_stability_outputs(result: StabilityResult, out_dir: str | os.PathLike,
     out_dir : an existing folder
     summary : what ``stability.json`` holds (default ``result.to_dict()``; a caller may add keys
         such as ``log_interrupted``); NaN and inf are written as null
+    prov : the report's provenance (:func:`~coilshift.analysis.report.html_page.provenance`;
+        default: now, this command line, the log named in the result)
+    name_of : how the report names a setting (the command line passes its option names)
 
     Returns
     -------
     the paths written, in that order
     """
     out = Path(out_dir)
-    paths = [out / SIGMA_TAU_PNG, out / DRIFT_PNG, out / TABLE_CSV, out / SUMMARY_JSON]
+    from coilshift.analysis.report.stability_html import report_html
+
+    paths = [out / SIGMA_TAU_PNG, out / DRIFT_PNG, out / TABLE_CSV, out / SUMMARY_JSON, out / REPORT_HTML]
     plot_sigma_tau(result, paths[0])
     plot_drift(result, paths[1])
     write_text_atomic(paths[2], stability_csv(result))
     write_json_atomic(paths[3], result.to_dict() if summary is None else summary)
+    write_text_atomic(paths[4], report_html(result, paths[0].read_bytes(), paths[1].read_bytes(), prov, name_of))
     return paths

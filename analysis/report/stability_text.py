@@ -55,7 +55,7 @@ def _drift_lines(res: StabilityResult, name_of) -> list[str]:
         lines.append(f"  settled start: {w.warmup_s:.4g}{u} s after the start of the log: {w.reason}")
     else:
         lines.append(f"  settled start: none within the log: {w.reason}; "
-                     + _render(f"{setting('settle')} sets the threshold", name_of))
+                     + _render(f"{setting('settled_hz_per_min')} sets the threshold", name_of))
     if d.determined:
         lines.append(f"  settled drift: {d.rate_hz_per_min:+.4g} ± {d.u_rate_hz_per_min:.2g} Hz/min (1 sigma), {d.reason}")
     else:

@@ -9,11 +9,18 @@ from dataclasses import dataclass
 import numpy as np
 
 from coilshift.logger.errors import InputError
+from coilshift.logger.textfile import require_regular_file
 
 from coilshift.analysis.stability.blocks import Blocks, block_length
 from coilshift.analysis.stability.gls import Whitener, gls_fit
 from coilshift.analysis.stability.grid import UniformSeries
 from coilshift.analysis.stability.noise_model import NoiseModel
+
+
+#: the temperatures a reading may give (absolute zero to a soldering iron's), and the largest
+#: time (the log's own limit, about 300 years)
+TEMP_RANGE_C = (-273.15, 1000.0)
+MAX_TIME_S = 1e10
 
 
 @dataclass
@@ -79,26 +86,33 @@ def temperature_coefficient(series: UniformSeries, time_s, temp_c, nominal_hz: f
 
 
 def read_temperature_csv(path) -> tuple[np.ndarray, np.ndarray]:
-    """Read a ``time_s,temp_c`` CSV (header row; times on the log's clock, increasing)."""
+    """Read a ``t_s,temp_c`` CSV (header row; times on the log's clock, increasing; the older
+    column name ``time_s`` is accepted too)."""
     import pandas as pd
 
+    require_regular_file(path, "temperature CSV")  # a named pipe would block the reader for ever
     try:
         df = pd.read_csv(path, skipinitialspace=True)
     except (OSError, ValueError, UnicodeDecodeError) as exc:
         raise InputError(f"{path}: cannot read as CSV ({str(exc).splitlines()[0]})") from None
     cols = [c.strip() for c in df.columns]
     df.columns = cols
-    if "time_s" not in cols or "temp_c" not in cols:
-        raise InputError(f"{path}: needs time_s and temp_c columns")
+    tcol = "t_s" if "t_s" in cols else "time_s"
+    if tcol not in cols or "temp_c" not in cols:
+        raise InputError(f"{path}: needs t_s and temp_c columns")
     try:
-        ts = df["time_s"].to_numpy(float)
+        ts = df[tcol].to_numpy(float)
         tc = df["temp_c"].to_numpy(float)
     except ValueError:
-        raise InputError(f"{path}: non-numeric time_s or temp_c") from None
+        raise InputError(f"{path}: non-numeric {tcol} or temp_c") from None
     ok = np.isfinite(ts) & np.isfinite(tc)
     ts, tc = ts[ok], tc[ok]
     if ts.size < 2:
         raise InputError(f"{path}: fewer than two temperature readings")
     if np.any(np.diff(ts) <= 0):
-        raise InputError(f"{path}: time_s does not increase")
+        raise InputError(f"{path}: {tcol} does not increase")
+    for name, v, lo, hi in ((tcol, ts, -MAX_TIME_S, MAX_TIME_S), ("temp_c", tc, *TEMP_RANGE_C)):
+        bad = (v < lo) | (v > hi)  # a damaged cell: the regression would overflow on it
+        if bad.any():
+            raise InputError(f"{path}: {name} {v[np.argmax(bad)]:g} is out of range ({lo:g} .. {hi:g})")
     return ts, tc

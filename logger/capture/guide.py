@@ -8,8 +8,10 @@ after it, and the analysis can interpolate the baseline across it (drift cancels
 :class:`CalibrationGuide` walks the plan with any engine-like object that has ``elapsed_s``
 (audio seconds since the start, the log's time scale) and ``add_marker(label)`` (the live
 capture engine, or a fake in the tests): it prompts, waits for Enter, waits the settling time
-after the move, marks the stretch, waits the dwell, closes the stretch. It never imports the
-analysis side and does no I/O except through the ``ask``/``say`` functions it is given.
+after the move, marks the stretch, waits the dwell (showing the live frequency and shift through
+``show``), closes the stretch and reads the measured shift back through ``readback`` (a function
+the command line gives it: the calibration analysis' own step statistic, which this module must
+not import). It does no I/O except through the functions it is given.
 """
 
 from __future__ import annotations
@@ -32,6 +34,15 @@ FIRST_BASELINE_FACTOR = 2.5
 QUIT_WORDS = ("q", "quit", "stop")
 #: answer that skips a target position (its closing baseline is still recorded)
 SKIP_WORDS = ("s", "skip")
+#: answer that records the last target stretch again (asked before the baseline that follows it)
+REDO_WORDS = ("r", "redo")
+#: what the keys do, for --help and the first prompt
+KEYS_HELP = ("Answers at each prompt: Enter goes on; s skips this target position; r (before the baseline "
+             "that follows a target) records that target stretch again; q ends the session (the stretches "
+             "recorded so far are kept and analysed). While a stretch records, the live frequency and shift "
+             "are shown; after it, the measured shift with its standard error and whether it is significant.")
+#: seconds between two live readouts while a stretch records
+SHOW_EVERY_S = 0.5
 
 
 def parse_distances(text: str, unit: str = "mm") -> list[float]:
@@ -137,6 +148,64 @@ def prompt_for(stretch: Stretch, unit: str = "mm", index: int = 0, total: int = 
             f"on the coil's axis, then take your hands away. Press Enter (s = skip, q = stop)")
 
 
+@dataclass(frozen=True)
+class StepReading:
+    """The measured shift of the latest target stretch, as the readback function found it.
+
+    Attributes
+    ----------
+    target, distance_mm : the stretch
+    shift_hz, stderr_hz : its shift against the baselines recorded so far, with its standard error
+    significant : the shift passes the analysis' significance test for one point
+    bracketed : a baseline after the stretch was used too (drift removed)
+    baseline_hz : the baseline the shift is taken from (for the ppm figure)
+    note : why the reading is weak ('' when clean)
+    """
+
+    target: str
+    distance_mm: float
+    shift_hz: float
+    stderr_hz: float
+    significant: bool
+    bracketed: bool = False
+    baseline_hz: float = math.nan
+    note: str = ""
+
+
+def reading_text(r: StepReading, unit: str = "mm") -> str:
+    """One line for a reading: shift +- error in Hz and ppm, and what it means."""
+    ppm = (f" ({1e6 * r.shift_hz / r.baseline_hz:+.4g} ppm)"
+           if math.isfinite(r.baseline_hz) and r.baseline_hz > 0 else "")
+    against = "baselines before and after" if r.bracketed else "the baseline before"
+    verdict = "significant" if r.significant else "NOT significant"
+    # the shift to the decimals its error supports (two significant digits of the error)
+    places = (min(max(1 - math.floor(math.log10(r.stderr_hz)), 0), 7)
+              if math.isfinite(r.stderr_hz) and r.stderr_hz > 0 else 3)
+    text = (f"  {r.target} at {_fmt_distance(r.distance_mm, unit)}: shift {r.shift_hz:+.{places}f} +- "
+            f"{r.stderr_hz:.2g} Hz{ppm} against {against}: {verdict}")
+    return text + (f" ({r.note})" if r.note else "")
+
+
+def no_response_warning(r: StepReading) -> str:
+    """The warning after a target stretch that shows no response."""
+    return (f"  warning: the {r.target} showed no response at this distance. Check the target is on the "
+            "coil's axis and the tone is tracked; press r at the next prompt to record it again")
+
+
+def live_text(snap, label: str, left_s: float) -> str:
+    """The live readout while a stretch records: time left, frequency (or NO TONE) and shift."""
+    from coilshift.logger.runfolder import flags as _flags
+
+    freq = getattr(snap, "freq_hz", math.nan)
+    if getattr(snap, "frame_flags", 0) & _flags.NO_TONE or not math.isfinite(freq):
+        f_txt = "NO TONE"
+    else:
+        f_txt = f"{freq:.3f} Hz"
+    shift = getattr(snap, "shift_hz", math.nan)
+    s_txt = f"shift {shift:+.3f} Hz" if math.isfinite(shift) else "shift ---"
+    return f"  recording {label}: {max(left_s, 0):4.1f} s left  {f_txt}  {s_txt}"
+
+
 @dataclass
 class GuideResult:
     """What a guided session produced."""
@@ -145,6 +214,19 @@ class GuideResult:
     completed: bool = False
     reason: str = ""
     skipped: list[tuple[str, float]] = field(default_factory=list)
+    readings: list[StepReading] = field(default_factory=list)
+    redone: int = 0
+
+    def summary_lines(self, unit: str = "mm") -> list[str]:
+        """The readings at the end of the session (the latest of each target stretch)."""
+        if not self.readings:
+            return []
+        lines = ["step readings (each against the baselines recorded around it):"]
+        lines += [reading_text(r, unit) for r in self.readings]
+        quiet = sum(1 for r in self.readings if not r.significant)
+        if quiet:
+            lines.append(f"  {quiet} of {len(self.readings)} target stretch(es) showed no significant response")
+        return lines
 
 
 class CaptureEnded(Exception):
@@ -164,11 +246,15 @@ class CalibrationGuide:
     say : message function (``print``)
     sleep : wall-clock sleep used while waiting for audio time to pass
     unit : unit shown in prompts
+    readback : ``f(markers so far) -> StepReading | None``: the shift of the latest target stretch
+    show : live readout while a stretch records (one line, rewritten; the engine's ``snapshot()``)
     """
 
     def __init__(self, engine, plan: list[Stretch], settle_s: float = DEFAULT_SETTLE_S,
                  ask: Callable[[str], str] = input, say: Callable[[str], None] = print,
-                 sleep: Callable[[float], None] = time.sleep, unit: str = "mm"):
+                 sleep: Callable[[float], None] = time.sleep, unit: str = "mm",
+                 readback: Callable[[list[Marker]], StepReading | None] | None = None,
+                 show: Callable[[str], None] | None = None):
         if not (math.isfinite(settle_s) and settle_s >= 0):
             raise InputError(f"{setting('settle_s')} {settle_s}: must be zero or positive seconds")
         self.engine = engine
@@ -176,17 +262,24 @@ class CalibrationGuide:
         self.settle_s = float(settle_s)
         self.ask, self.say, self.sleep = ask, say, sleep
         self.unit = unit
+        self.readback, self.show = readback, show
         self.result = GuideResult()
 
     def _ended(self) -> bool:
         w = getattr(self.engine, "wait", None)
         return bool(w(0)) if callable(w) else False
 
-    def _wait(self, seconds: float) -> None:
+    def _wait(self, seconds: float, label: str = "") -> None:
         # audio time, not wall time: the stretch must hold `seconds` of signal
         until = float(self.engine.elapsed_s) + seconds
+        shown = -math.inf
+        snapshot = getattr(self.engine, "snapshot", None)
         while True:
-            left = until - float(self.engine.elapsed_s)
+            now = float(self.engine.elapsed_s)
+            left = until - now
+            if label and self.show is not None and callable(snapshot) and now - shown >= SHOW_EVERY_S:
+                self.show(live_text(snapshot(), label, left))
+                shown = now
             if left <= 0:
                 return
             if self._ended():
@@ -197,6 +290,50 @@ class CalibrationGuide:
         t = self.engine.add_marker(label)
         return float(t) if isinstance(t, (int, float)) else float(self.engine.elapsed_s)
 
+    def _read_back(self, after_target: bool) -> None:
+        """Say the latest target stretch's shift (after it, and again once its closing baseline
+        is in); warn when a target stretch shows no response."""
+        if self.readback is None:
+            return
+        r = self.readback(list(self.result.markers))
+        if r is None:
+            if after_target:
+                self.say("  no reading: too few usable frames in the stretch (is the tone tracked?)")
+            return
+        self.say(reading_text(r, self.unit))
+        if after_target:
+            if not r.significant:
+                self.say(no_response_warning(r))
+        else:  # the bracketed reading replaces the one-sided one
+            rs = self.result.readings
+            if rs and (rs[-1].target, rs[-1].distance_mm) == (r.target, r.distance_mm):
+                rs.pop()
+            rs.append(r)
+            return
+        self.result.readings.append(r)
+
+    def _record(self, st: Stretch) -> None:
+        """Settle, mark, record one stretch (with the live readout), close it."""
+        if self.settle_s > 0:
+            self.say(f"  settling {self.settle_s:g} s ...")
+            self._wait(self.settle_s)
+        start = self._mark(marker_label(st))
+        label = "baseline" if st.is_baseline else f"{st.target} at {_fmt_distance(st.distance_mm, self.unit)}"
+        self.say(f"  recording {label} for {st.dwell_s:g} s ...")
+        self._wait(st.dwell_s, label)
+        end = self._mark("end")
+        self.result.markers.append(Marker(start, end, st.target, st.distance_mm))
+
+    def _redo(self) -> None:
+        """Forget the last target stretch (and its reading) so it is recorded again."""
+        res = self.result
+        last = res.markers.pop()
+        if res.readings and (res.readings[-1].target, res.readings[-1].distance_mm) == (last.target,
+                                                                                         last.distance_mm):
+            res.readings.pop()
+        res.redone += 1
+        self.say(f"  the {last.target} at {_fmt_distance(last.distance_mm, self.unit)} will be recorded again")
+
     def run(self) -> GuideResult:
         """Run the whole session; returns the stretches recorded (also on quit or engine stop).
 
@@ -206,18 +343,29 @@ class CalibrationGuide:
         res = self.result = GuideResult()
         total = len(self.plan)
         skip_next_baseline = False
-        for i, st in enumerate(self.plan, start=1):
+        i = 0
+        while i < total:
+            st = self.plan[i]
+            i += 1
             if st.is_baseline and skip_next_baseline:
                 skip_next_baseline = False
                 continue
+            redo_ok = st.is_baseline and bool(st.after) and bool(res.markers) and not res.markers[-1].is_baseline
+            prompt = prompt_for(st, self.unit, i, total)
+            if redo_ok:
+                prompt += " (r = record the " + st.after + " again, q = stop)"
             try:
-                answer = self.ask(prompt_for(st, self.unit, i, total) + " ")
+                answer = self.ask(prompt + " ")
             except EOFError:
                 answer = "q"
             word = str(answer).strip().lower()
             if word in QUIT_WORDS:
                 res.reason = "stopped by the user"
                 return res
+            if word in REDO_WORDS and redo_ok:
+                self._redo()
+                i -= 2  # back to the target stretch
+                continue
             if word in SKIP_WORDS and not st.is_baseline:
                 res.skipped.append((st.target, st.distance_mm))
                 self.say(f"  skipped {st.target} at {_fmt_distance(st.distance_mm, self.unit)}")
@@ -225,16 +373,11 @@ class CalibrationGuide:
                 skip_next_baseline = True
                 continue
             try:
-                if self.settle_s > 0:
-                    self.say(f"  settling {self.settle_s:g} s ...")
-                    self._wait(self.settle_s)
-                start = self._mark(marker_label(st))
-                self.say(f"  recording {'baseline' if st.is_baseline else st.target} for {st.dwell_s:g} s ...")
-                self._wait(st.dwell_s)
-                end = self._mark("end")
+                self._record(st)
             except CaptureEnded as exc:
                 res.reason = str(exc)
                 return res
-            res.markers.append(Marker(start, end, st.target, st.distance_mm))
+            if not st.is_baseline or st.after:
+                self._read_back(after_target=not st.is_baseline)
         res.completed = True
         return res

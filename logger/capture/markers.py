@@ -84,6 +84,13 @@ class LiveMarkers:
         if t_s > start:
             self.closed.append(Marker(start, t_s, target, math.nan if target == BASELINE else dist))
 
+    def latest_s(self) -> float:
+        """Where the latest stretch starts or ends (-inf before the first): a new marker never
+        starts before it, so a marker timed in the past cannot swallow a later stretch."""
+        if self._open is not None:
+            return self._open[2]
+        return self.closed[-1].end_s if self.closed else -math.inf
+
     def describe_open(self) -> str:
         """The open stretch for a live readout: ``baseline``, ``coin @ 50 mm``, or ''."""
         if self._open is None:

@@ -17,6 +17,7 @@ from pathlib import Path
 from typing import Callable
 
 from coilshift.logger.capture.markers import LiveMarkers, parse_marker_label
+from coilshift.logger.events.live import with_live_events  # noqa: F401  (the capture engine imports it here)
 from coilshift.logger.runfolder.markers import Marker
 
 #: while a stretch is open, markers.csv is rewritten at least this often (s)
@@ -50,6 +51,8 @@ class CaptureSnapshot:
     queue_fill: float = 0.0
     status: str = "starting"
     message: str = ""
+    events: tuple = ()  # the latest events found live, one line each (logger/events/live.py)
+    events_status: str = ""
 
     def to_dict(self) -> dict:
         return asdict(self)
@@ -74,12 +77,19 @@ class CaptureSession:
         self._position, self._time_of = position, time_of
 
     # ------------------------------------------------------------------ user side
-    def add_marker(self, label: str, distance_mm: float | None = None) -> float:
-        """Start a marked stretch now (see :func:`parse_marker_label`); returns its start time in s."""
+    def position_now(self) -> int:
+        """The run's sample position now: pass it to :meth:`add_marker` as ``at`` to time a marker
+        at the moment a key was pressed rather than when its label was typed."""
+        with self._lock:
+            return self._position()
+
+    def add_marker(self, label: str, distance_mm: float | None = None, at: int | None = None) -> float:
+        """Start a marked stretch now, or at the earlier sample position ``at`` (see
+        :func:`parse_marker_label`); returns its start time in s."""
         target, dist = parse_marker_label(label, distance_mm)
         with self._lock:
-            n = self._position()
-            t = self._time_of(n)
+            n = self._position() if at is None else min(max(int(at), 0), self._position())
+            t = max(self._time_of(n), self._markers.latest_s())
             self._markers.start(target, dist, t)
             self._marker_times.append(n)
             self._markers.write(t)

@@ -3,7 +3,8 @@
 :class:`TerminalPanel` redraws a small panel a few times a second with plain ANSI codes
 (frequency, or NO TONE while the latest frame has none, shift from the baseline, a level meter
 with a clipping warning, SNR, elapsed time, faults, frames without a tone so far) and reads
-single keys from the terminal: re-zero, add a marker (typed label), quit.
+single keys from the terminal: re-zero, add a marker (typed label, timed when the key was
+pressed), start a baseline stretch, quit.
 :class:`PlainLines` prints one line a second when stdout is not a terminal (a log file, a pipe).
 :class:`LivePlot` shows frequency and shift in a matplotlib window when a display is available.
 
@@ -26,8 +27,14 @@ from coilshift.logger.runfolder import flags as _flags
 KEY_REZERO = "z"
 KEY_MARKER = "m"
 KEY_QUIT = "q"
-KEYS_HELP = f"keys: [{KEY_REZERO}] re-zero baseline   [{KEY_MARKER}] marker   [{KEY_QUIT}] quit"
-MARKER_HELP = "marker label: 'baseline', 'end', or target and distance in mm, e.g. 'coin 50'"
+KEY_BASELINE = "b"
+KEYS_HELP = (f"keys: [{KEY_REZERO}] re-zero baseline   [{KEY_MARKER}] marker   [{KEY_BASELINE}] baseline "
+             f"stretch   [{KEY_QUIT}] quit")
+MARKER_HELP = ("marker label: 'baseline', 'end', or target and distance in mm, e.g. 'coin 50' "
+               "(the marker is timed when you pressed m)")
+#: shown while target stretches are marked but no baseline stretch is
+BASELINE_HINT = (f"to analyse this run, mark target-free stretches too: press {KEY_BASELINE} before and after "
+                 "each target")
 
 #: the level meter spans this many dB below full scale
 METER_RANGE_DB = 60.0
@@ -85,7 +92,7 @@ def status_line(snap) -> str:
     return "  ".join(parts)
 
 
-def panel_lines(snap, title: str, prompt: str | None, note: str) -> list[str]:
+def panel_lines(snap, title: str, prompt: str | None, note: str, hint: str = "") -> list[str]:
     """The text of the terminal panel (without ANSI codes), one string per line."""
     if snap.baseline_pending and not math.isfinite(snap.baseline_hz):
         base = "measuring baseline..."
@@ -119,12 +126,16 @@ def panel_lines(snap, title: str, prompt: str | None, note: str) -> list[str]:
         lines.insert(-1, f"  last fault {snap.last_fault}")
     if snap.message:
         lines.insert(-1, f"  note       {snap.message}")
+    if snap.events_status:  # the live event detector (logger/events/live.py)
+        lines[-1:-1] = [f"  events     {snap.events_status}"] + [f"             {e}" for e in snap.events]
     if prompt is not None:
         lines.append(MARKER_HELP)
         lines.append(f"label (Enter to set, Esc to cancel): {prompt}_")
     else:
         lines.append(KEYS_HELP)
         lines.append(note)
+    if hint:
+        lines.append(hint)
     return lines
 
 
@@ -169,6 +180,9 @@ class TerminalPanel:
         self.prompt: str | None = None
         self.note = note
         self._drawn = 0
+        self._prompt_at: int | None = None  # sample position when the marker key was pressed
+        self.targets_marked = 0
+        self.baselines_marked = 0
 
     def run(self, plot: "LivePlot | None" = None) -> str:
         """Show the panel until the user quits ('quit') or the run ends by itself ('ended')."""
@@ -202,17 +216,35 @@ class TerminalPanel:
             self.out.write("\x1b[?25h\n")
             self.out.flush()
 
+    def _mark(self, label: str, at: int | None) -> None:
+        """Add a marker timed at sample position ``at`` (the key press) when the engine can."""
+        session = getattr(self.engine, "session", None)
+        try:
+            if at is not None and session is not None:
+                t = session.add_marker(label, at=at)
+            else:
+                t = self.engine.add_marker(label)
+        except InputError as exc:
+            self.note = f"not set: {exc}"
+            return
+        word = label.strip().lower()
+        if word == "baseline":
+            self.baselines_marked += 1
+        elif word != "end":
+            self.targets_marked += 1
+        self.note = f"marker '{label.strip()}' set at {t:.2f} s"
+
+    def _position(self) -> int | None:
+        session = getattr(self.engine, "session", None)
+        return session.position_now() if session is not None else None
+
     def _keys(self, chars: str) -> bool:
         """Handle typed characters; True means quit."""
         for ch in chars:
             if self.prompt is not None:
                 if ch in ("\r", "\n"):
                     label, self.prompt = self.prompt, None
-                    try:
-                        t = self.engine.add_marker(label)
-                        self.note = f"marker '{label.strip()}' set at {t:.2f} s"
-                    except InputError as exc:
-                        self.note = f"not set: {exc}"
+                    self._mark(label, self._prompt_at)
                 elif ch == "\x1b":
                     self.prompt, self.note = None, "marker cancelled"
                 elif ch in ("\x7f", "\b"):
@@ -227,11 +259,15 @@ class TerminalPanel:
                 t = self.engine.rezero()
                 self.note = f"re-zero at {t:.2f} s: new baseline from the next {self.engine.baseline_s:g} s"
             elif key == KEY_MARKER:
+                self._prompt_at = self._position()  # the moment of the key press, not of Enter
                 self.prompt = ""
+            elif key == KEY_BASELINE:
+                self._mark("baseline", self._position())
         return False
 
     def _draw(self) -> None:
-        lines = panel_lines(self.engine.snapshot(), self.title, self.prompt, self.note)
+        hint = BASELINE_HINT if self.targets_marked and not self.baselines_marked else ""
+        lines = panel_lines(self.engine.snapshot(), self.title, self.prompt, self.note, hint)
         # home the cursor, rewrite each line and clear its tail, then clear anything below
         buf = ["\x1b[H" if self._drawn else "\x1b[2J\x1b[H"]
         for line in lines:

@@ -8,6 +8,9 @@ therefore leaves ``OUT`` exactly as it was: never a mix of new and old outputs.
 
 With ``force`` an existing folder is allowed: each new output replaces the file of the same
 name (one atomic rename each); the user's other files and folders there are kept as they are.
+Those renames hold the folder's lock (:class:`~coilshift.logger.runfolder.locking.FolderLock`),
+so two commands swapping into one folder never interleave their outputs, and a folder that a
+run is being written into (a capture) is refused, at the start and again at the swap.
 """
 
 from __future__ import annotations
@@ -21,7 +24,7 @@ from pathlib import Path
 from coilshift.logger.errors import InputError
 from coilshift.logger.runfolder.atomic import _umask
 from coilshift.logger.runfolder.folders import make_folder, refuse_existing
-from coilshift.logger.runfolder.locking import held_signals
+from coilshift.logger.runfolder.locking import FolderLock, held_signals
 
 #: prefix of the hidden folder an output folder is built in (after a dot and the folder's name)
 BUILDING = ".building-"
@@ -38,6 +41,8 @@ def building_output_dir(path: str | os.PathLike, force: bool = False):
     """
     final = Path(path)
     refuse_existing(final, force, replaces="its contents")
+    if final.is_dir():
+        FolderLock(final).release()  # refused now, before the work, if another command is writing there
     make_folder(final.parent)
     try:
         build = Path(tempfile.mkdtemp(prefix=f".{final.name}{BUILDING}", dir=final.parent))
@@ -66,16 +71,20 @@ def swap_in(build: Path, final: Path, force: bool) -> None:
     """Move everything in ``build`` into ``final`` (see the module notes); ``build`` ends empty.
 
     Raises InputError, moving nothing, when ``final`` became non-empty meanwhile without
-    ``force``, or when a new output's name is taken by a file where a folder goes (or the
-    reverse).
+    ``force``, when another command holds its lock, or when a new output's name is taken by a
+    file where a folder goes (or the reverse).
     """
     with held_signals():
         refuse_existing(final, force, replaces="its contents")  # again: another command may have written it
         if not final.exists() or not any(final.iterdir()):
             os.replace(build, final)  # a new or empty folder: one rename
             return
-        _check_kinds(build, final)
-        _merge(build, final)
+        lock = FolderLock(final)  # one swap at a time
+        try:
+            _check_kinds(build, final)
+            _merge(build, final)
+        finally:
+            lock.release()
 
 
 def _check_kinds(src: Path, dst: Path) -> None:

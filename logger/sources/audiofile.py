@@ -60,7 +60,8 @@ class AudioFileSource:
             head, total = self._head_and_size()
             riff = check_riff(head, total, self.name)
             self._bext_start = riff.bext_start
-            if riff.unfinished:
+            stale = _stale_data_size(self._file, riff)
+            if riff.unfinished or stale:
                 self._raw = _unfinished_samples(riff, self.name)
         try:
             with self._open() as snd:
@@ -74,7 +75,8 @@ class AudioFileSource:
         self._check_header(channel)
         self.channel = int(channel)
         if self._raw is not None:
-            self.warnings.append(f"warning: {self.name}: unfinished WAV header (data size 0: the recorder did not "
+            what = (f"data size {riff.data_declared}, but samples go on after it" if stale else "data size 0")
+            self.warnings.append(f"warning: {self.name}: unfinished WAV header ({what}: the recorder did not "
                                  f"finish the file); read the {self.n_frames} samples to the end of the file")
 
     def _check_header(self, channel: int) -> None:
@@ -175,6 +177,35 @@ class AudioFileSource:
         return mtime_start(self._file, self.duration_s if duration_s is None else duration_s)
 
 
+def _stale_data_size(file, riff) -> bool:
+    """Whether more samples follow the data chunk than its header counts: a recorder that rewrites
+    the sizes now and then and stopped between two rewrites.
+
+    What follows a finished data chunk is another chunk (an ASCII id and a size that fits the
+    file) or nothing; zero bytes (padding, space reserved) are not taken for samples.
+    """
+    declared, present = riff.data_declared, riff.data_present
+    if not declared or declared == 0xFFFFFFFF or riff.wave_format is None or not present:
+        return False
+    end = riff.data_offset + declared + (declared & 1)
+    if present - declared - (declared & 1) < max(8, riff.wave_format[4]):
+        return False  # nothing after it, or less than a sample frame and a chunk header
+    if is_path(file):
+        with open(file, "rb") as fh:
+            fh.seek(end)
+            after = fh.read(1 << 16)
+    else:
+        pos = file.tell()
+        file.seek(end)
+        after = file.read(1 << 16)
+        file.seek(pos)
+    if not after.strip(b"\0"):
+        return False
+    size = int.from_bytes(after[4:8], "little")
+    chunk = all(32 <= c < 127 for c in after[:4]) and size <= riff.data_offset + present - end - 8
+    return not chunk
+
+
 #: (WAVE format tag, bits per sample) -> the libsndfile subtype that reads such samples raw
 _RAW_SUBTYPES = {(1, 8): "PCM_U8", (1, 16): "PCM_16", (1, 24): "PCM_24", (1, 32): "PCM_32",
                  (3, 32): "FLOAT", (3, 64): "DOUBLE"}
@@ -188,7 +219,7 @@ def _unfinished_samples(riff, name: str) -> tuple[int, int, str, int, int]:
     tag, channels, rate, bits, block_align = riff.wave_format
     subtype = _RAW_SUBTYPES.get((tag, bits))
     if subtype is None or not rate or not block_align:
-        raise InputError(f"{name}: unfinished WAV header (data size 0, the writer did not finish the file) "
+        raise InputError(f"{name}: unfinished WAV header (the writer did not finish the file) "
                          f"in an encoding that cannot be read without it")
     length = riff.data_present - riff.data_present % block_align  # whole sample frames only
     return riff.data_offset, length, subtype, rate, channels

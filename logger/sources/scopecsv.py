@@ -23,6 +23,10 @@ from coilshift.logger.sources.protocol import mtime_start, one_line
 
 _HEAD_BYTES = 1 << 18  # the sample of first lines the layout is found from
 _CSV_CHUNK_ROWS = 1 << 17
+#: beyond these a cell is damaged, not a measurement: volts no probe gives (1 MV), and a sample
+#: rate above any oscilloscope's (1 THz; the fastest sample at a few hundred GS/s, from memory)
+MAX_VOLTS = 1e6
+MAX_SAMPLE_RATE_HZ = 1e12
 
 
 def _full_scale_v(peak_v: float) -> float:
@@ -164,6 +168,11 @@ class ScopeCsvSource:
             v = self._numbers(lines, vcells, "voltage") * lay.volt_scales[self.channel]
             if len(t) == 0:
                 continue
+            loud = np.abs(v) > MAX_VOLTS
+            if loud.any():
+                k = int(np.argmax(loud))
+                raise InputError(f"{self.name}: line {int(lines[k])}: voltage {v[k]:.6g} V is beyond any probe "
+                                 f"(at most {MAX_VOLTS:g} V); a damaged cell?")
             if n == 0:
                 t_first = t[0]
                 d_start = np.diff(t[: min(len(t), 1025)])
@@ -197,6 +206,9 @@ class ScopeCsvSource:
         self.n_frames = n
         self.t_first_s = float(t_first)
         self.sample_rate_hz = float((n - 1) / (t_last - t_first))
+        if not self.sample_rate_hz <= MAX_SAMPLE_RATE_HZ:  # also inf, from steps too small for a float
+            raise InputError(f"{self.name}: time steps of {(t_last - t_first) / (n - 1):.3g} s make a sample rate "
+                             f"above {MAX_SAMPLE_RATE_HZ:g} Hz, beyond any oscilloscope; check the time column's unit")
         self._peak_v = peak
 
     @property

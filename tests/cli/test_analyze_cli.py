@@ -136,8 +136,8 @@ def test_guided_calibration_end_to_end_on_a_paced_synthetic_tone(tmp_path, capsy
     # a paced synthetic tone stands in for the soundcard; Enter is pressed three times
     monkeypatch.setattr("sys.stdin", io.StringIO("\n\n\n"))
     run_dir = tmp_path / "live"
-    rc, out, err = _run(capsys, "calibrate", "-o", run_dir, "--target", "coin", "--distances", "1", "--unit", "cm",
-                        "--dwell", "0.5", "--settle", "0.1", "--synthetic", "5000", "--baseline-s", "0.5",
+    rc, out, err = _run(capsys, "calibrate", "-o", run_dir, "--target", "coin", "--distances", "1cm",
+                        "--dwell", "0.5", "--settle-s", "0.1", "--synthetic", "5000", "--baseline-s", "0.5",
                         "--threshold-hz", "0.5", "--bootstrap", "0", "--json")
     assert rc == 0, err
     assert "CAUTION" in err and "line input" in err

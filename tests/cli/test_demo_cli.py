@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import re
 import subprocess
 import sys
 
@@ -41,7 +42,30 @@ def test_demo_runs_and_reports(demo):
     for png in out.rglob("*.png"):
         assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     html = (out / "report.html").read_text()
-    assert "Synthetic data" in html and 'src="calibration/compare.png"' in html
+    assert "Synthetic data" in html and 'src="data:image/png;base64,' in html  # one file: images inline
+    for rel in ("report.html", "calibration/report.html", "stability/report.html"):
+        page = (out / rel).read_text()
+        # the header says where the report came from: date, version, command line, inputs and checksums
+        assert "coilshift demo -o" in page and "sha256" in page and "How to read this report" in page
+        assert re.search(r"\d{4}-\d\d-\d\d \d\d:\d\d:\d\d UTC", page)
+        assert "nan" not in re.sub(r"<[^>]+>|data:image/png;base64,[A-Za-z0-9+/=]+", "", page).lower().split()
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("rel", ["report.html", "calibration/report.html", "stability/report.html"])
+def test_every_report_renders_in_a_browser(demo, rel, tmp_path):
+    # headless Chromium at 1280 px: every image decodes, is inline, nothing reaches past the page
+    import browser
+
+    if browser.chromium() is None:
+        pytest.skip("chromium is not installed (CI installs it: .ci/run)")
+    out, r = demo
+    assert r.returncode == 0, r.stderr
+    got = browser.probe(out / rel, tmp_path)
+    assert got["images"] >= 2, got
+    assert got["broken"] == [] and got["not_inline"] == [] and got["external"] == [], got
+    assert got["scroll_width"] <= got["inner_width"] == browser.WIDTH_PX, got
+    assert got["wide"] == [], got
 
 
 @pytest.mark.slow

@@ -124,17 +124,17 @@ COIL = ["--turns", "20", "--inner-diameter-mm", "100", "--length-mm", "200", "--
 MODEL_COMMANDS = {  # commands that compute from numbers alone: run them at the ends of every range
     "coil": ["coil", *COIL],
     "astable": ["astable", "--r1-ohm", "1000", "--r2-ohm", "1000", "--cap-nf", "10"],
-    "target": ["target", *COIL, "--target", "copper:diameter_mm=20", "--threshold-hz", "1"],
+    "target": ["target", *COIL, "--sphere", "copper:diameter_mm=20", "--threshold-hz", "1"],
 }
 #: the company an option needs (options that only make sense with others, or exclude others)
 CONTEXT = {
     ("coil", "--wire-diameter-mm"): ["coil", *COIL[:6], "--cap-nf", "10"],
-    ("target", "--wire-diameter-mm"): ["target", *COIL[:6], "--cap-nf", "10", "--target", "copper:diameter_mm=20"],
+    ("target", "--wire-diameter-mm"): ["target", *COIL[:6], "--cap-nf", "10", "--sphere", "copper:diameter_mm=20"],
     ("astable", "--r-ohm"): ["astable", "--one-resistor", "--cap-nf", "10"],
     ("astable", "--freq-hz"): ["astable"],
     ("astable", "--duty"): ["astable", "--freq-hz", "10000"],
-    ("target", "--noise-hz"): ["target", *COIL, "--target", "copper:diameter_mm=20"],
-    ("target", "--sigmas"): ["target", *COIL, "--target", "copper:diameter_mm=20", "--noise-hz", "0.01"],
+    ("target", "--noise-hz"): ["target", *COIL, "--sphere", "copper:diameter_mm=20"],
+    ("target", "--noise-factor"): ["target", *COIL, "--sphere", "copper:diameter_mm=20", "--noise-hz", "0.01"],
     ("target", "--diameter-mm"): ["target", *COIL, "--material", "copper"],
     ("target", "--conductivity-s-per-m"): ["target", *COIL, "--diameter-mm", "20", "--mu-r", "1"],
     ("target", "--mu-r"): ["target", *COIL, "--diameter-mm", "20", "--conductivity-s-per-m", "5.8e7"],

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import math
 import subprocess
 import sys
 
@@ -55,8 +56,8 @@ def test_coil_from_file_with_override(tmp_path, capsys):
 
 
 def test_target_json(capsys):
-    code, out, err = run_main(capsys, "target", *LOOP, "--target", "steel:diameter_mm=12",
-                              "--distances-mm", "10", "50", "--threshold-hz", "0.5", "--json")
+    code, out, err = run_main(capsys, "target", *LOOP, "--sphere", "steel:diameter_mm=12",
+                              "--distances", "10,50", "--threshold-hz", "0.5", "--json")
     assert code == 0 and err == ""
     obj = json.loads(out)
     assert obj["distance_mm"] == [10.0, 50.0]
@@ -75,24 +76,29 @@ def test_target_with_material_options(capsys):
 
 
 def test_target_threshold_from_a_noise_log(tmp_path, capsys):
-    # The threshold is 3 x sqrt(2) x the overlapping Allan deviation at tau (a reading minus its
-    # baseline); the reference ADEV comes from allantools (an independent library)
+    # The threshold is K x the overlapping Allan deviation at tau, the rule of analyze (K = 5 by
+    # default); the reference ADEV comes from allantools (an independent library)
     allantools = pytest.importorskip("allantools")
     rng = np.random.default_rng(7)
     t = np.arange(600) * 0.05
     f = 35000.0 + 0.02 * rng.standard_normal(t.size)
     path = tmp_path / "quiet.csv"
     path.write_text("t_s,freq_hz\n" + "".join(f"{a:.3f},{b:.6f}\n" for a, b in zip(t, f)))
-    code, out, err = run_main(capsys, "target", *LOOP, "--target", "cu:diameter_mm=20", "--noise-log", str(path),
+    code, out, err = run_main(capsys, "target", *LOOP, "--sphere", "cu:diameter_mm=20", "--noise-log", str(path),
                               "--tau-s", "1.0", "--json")
     assert code == 0, err
     taus, adev, _, _ = allantools.oadev(f, rate=20.0, data_type="freq", taus=[1.0])[:4]
+    assert json.loads(out)["threshold_hz"] == pytest.approx(5.0 * adev[0], rel=1e-6)
+    # the old spelling still works for one release: --sigmas S is K = S x sqrt(2), with a note
+    code, out, err = run_main(capsys, "target", *LOOP, "--sphere", "cu:diameter_mm=20", "--noise-log", str(path),
+                              "--tau-s", "1.0", "--sigmas", "3", "--json")
+    assert code == 0 and "--sigmas is now --noise-factor" in err
     assert json.loads(out)["threshold_hz"] == pytest.approx(3 * np.sqrt(2) * adev[0], rel=1e-6)
 
 
 def test_target_output_folder(tmp_path, capsys):
     out_dir = tmp_path / "pred"
-    args = ["target", *LOOP, "--target", "brass:diameter_mm=15", "--distances-mm", "10", "40", "--threshold-hz", "0.2",
+    args = ["target", *LOOP, "--sphere", "brass:diameter_mm=15", "--distances", "10,40", "--threshold-hz", "0.2",
             "-o", str(out_dir)]
     code, out, err = run_main(capsys, *args)
     assert code == 0, err
@@ -110,7 +116,13 @@ def test_astable_json(capsys):
     code, out, _ = run_main(capsys, "astable", "--r1-ohm", "3900", "--r2-ohm", "3000", "--cap-nf", "10", "--json")
     assert code == 0
     obj = json.loads(out)
-    assert obj["freq_hz"] == pytest.approx(14572.7, abs=0.1) and obj["duty"] == pytest.approx(0.697, abs=1e-3)
+    # NE555 datasheet: f = 1.44 / ((R1 + 2 R2) C), duty = (R1 + R2) / (R1 + 2 R2) [pub, REFERENCES
+    # section 7]. The datasheet's 1.44 is 1/ln 2 = 1.4427 rounded (the capacitor swings between
+    # 1/3 and 2/3 of the supply, so each half period is R C ln 2): 0.19 % apart, the tolerance.
+    r1, r2, c = 3900.0, 3000.0, 10e-9
+    assert obj["freq_hz"] == pytest.approx(1.44 / ((r1 + 2 * r2) * c), rel=2.0e-3)
+    assert obj["freq_hz"] == pytest.approx(1 / (math.log(2) * (r1 + 2 * r2) * c), rel=1e-9)
+    assert obj["duty"] == pytest.approx((r1 + r2) / (r1 + 2 * r2), rel=1e-9)
     code, out, _ = run_main(capsys, "astable", "--freq-hz", "10000")
     assert code == 0 and "wanted 10000 Hz" in out
 
@@ -124,12 +136,12 @@ def test_astable_json(capsys):
     ["coil", "--turns", "50", "--inner-diameter-mm", "20", "--length-mm", "10", "--awg", "99"],
     ["coil", "--inner-diameter-mm", "20"],
     ["coil", "--coil", "/nonexistent/coil.json"],
-    ["target", *LOOP, "--target", "unobtainium:diameter_mm=3"],
+    ["target", *LOOP, "--sphere", "unobtainium:diameter_mm=3"],
     ["target", *LOOP, "--material", "copper"],
-    ["target", "--turns", "10", "--inner-diameter-mm", "100", "--length-mm", "1", "--target", "cu:diameter_mm=5"],
-    ["target", *LOOP, "--target", "cu:diameter_mm=5", "--threshold-hz", "0"],
-    ["target", *LOOP, "--target", "cu:diameter_mm=5", "--noise-hz", "0.1", "--threshold-hz", "1"],
-    ["target", *LOOP, "--target", "cu:diameter_mm=5", "--noise-log", "/nonexistent/run"],
+    ["target", "--turns", "10", "--inner-diameter-mm", "100", "--length-mm", "1", "--sphere", "cu:diameter_mm=5"],
+    ["target", *LOOP, "--sphere", "cu:diameter_mm=5", "--threshold-hz", "0"],
+    ["target", *LOOP, "--sphere", "cu:diameter_mm=5", "--noise-hz", "0.1", "--threshold-hz", "1"],
+    ["target", *LOOP, "--sphere", "cu:diameter_mm=5", "--noise-log", "/nonexistent/run"],
     ["astable", "--freq-hz", "1000", "--duty", "0.4"],
     ["astable", "--r1-ohm", "1000"],
 ])

@@ -52,7 +52,7 @@ def test_reading_commands_never_modify_their_inputs(inputs, tmp_path):
     d = inputs
     runs = [("analyze", d / "run", "--bootstrap", "20", "-o", tmp_path / "a"),
             ("stability", d / "run", "-o", tmp_path / "s"),
-            ("target", "--coil", d / "coil.json", "--target", "copper:diameter_mm=20", "--noise-log", d / "run",
+            ("target", "--coil", d / "coil.json", "--sphere", "copper:diameter_mm=20", "--noise-log", d / "run",
              "-o", tmp_path / "t"),
             ("track", d / "rec.wav", "--markers", d / "rec_markers.csv", "-o", tmp_path / "k", "--quiet"),
             ("clock-error", d / "rec.wav", "--reference-hz", "1000", "--quiet"),
@@ -78,7 +78,7 @@ def _commands(d: Path):
         "analyze": (("analyze", d / "run", "--bootstrap", "20", "-o", "{out}"), ("report.html", "steps.csv")),
         "stability": (("stability", d / "run", "-o", "{out}"), ("stability.json", "sigma_tau.png")),
         "simulate": (("simulate", d / "script.json", "-o", "{out}"), ("recording.wav", "truth.json")),
-        "target": (("target", "--coil", d / "coil.json", "--target", "copper:diameter_mm=20", "-o", "{out}"),
+        "target": (("target", "--coil", d / "coil.json", "--sphere", "copper:diameter_mm=20", "-o", "{out}"),
                    ("prediction.csv", "prediction.json")),
         "calibrate": (("calibrate", "-o", "{out}", "--target", "coin", "--distances", "10,20"), None),
         "demo": (("demo", "-o", "{out}"), None),
@@ -169,7 +169,11 @@ def _shown_config(tmp_path: Path) -> dict:
     ("capture", "-o", "{out}", "--force", "--synthetic", "1000", "--rate", "200", "--save-audio", "--no-view"),
     ("calibrate", "-o", "{out}", "--force", "--target", "coin", "--distances", "10", "--synthetic", "1000",
      "--rate", "200"),
-], ids=["capture", "capture-save-audio", "calibrate"])
+    # the input cannot be opened at all (no such device; no sound server either, in a test)
+    ("capture", "-o", "{out}", "--force", "--device", "no such device here", "--seconds", "1", "--no-view"),
+    ("calibrate", "-o", "{out}", "--force", "--target", "coin", "--distances", "10", "--device",
+     "no such device here"),
+], ids=["capture", "capture-save-audio", "calibrate", "capture-no-device", "calibrate-no-device"])
 def test_a_refused_start_leaves_the_old_run_whole(tmp_path, argv):
     out = tmp_path / "out"
     before = _old_capture(out)
@@ -207,7 +211,7 @@ def test_ctrl_c_at_the_first_run_caution_leaves_the_old_run_whole(tmp_path):
 OUTPUT_COMMANDS = {
     "analyze": (("analyze", "{run}", "--bootstrap", "20", "-o", "{out}", "--force"), 2),
     "stability": (("stability", "{run}", "-o", "{out}", "--force"), 2),
-    "target": (("target", "--coil", "{coil}", "--target", "copper:diameter_mm=20", "-o", "{out}", "--force"), 2),
+    "target": (("target", "--coil", "{coil}", "--sphere", "copper:diameter_mm=20", "-o", "{out}", "--force"), 2),
     "simulate": (("simulate", "{script}", "-o", "{out}", "--force"), 1),
     "demo": (("demo", "-o", "{out}", "--force", "--json"), 3),
 }
@@ -262,3 +266,22 @@ def test_analyze_names_every_run_uniquely(inputs, tmp_path):
     assert len(set(names)) == 3 and names[0] == "run" and names[2] == "run-2"
     assert json.loads((out / "comparison.json").read_text())["runs"] == names
     assert {p.name for p in out.iterdir() if p.is_dir()} == set(names)
+
+
+def test_analyze_keeps_every_run_in_its_own_folder_inside_the_output(inputs, tmp_path):
+    # runs named by '..' and '.' (analyze run from inside a run folder), and a name that differs
+    # from another only in case (one folder on macOS and Windows): every run gets a plain, unique
+    # output folder inside OUT, and nothing is written beside OUT
+    home = tmp_path / "bench" / "run"
+    shutil.copytree(inputs / "run", home)
+    shutil.copytree(inputs / "run", home / "inner")
+    shutil.copytree(inputs / "run", home / "inner" / "RUN")
+    (tmp_path / "bench" / "notes.txt").write_text("mine\n")
+    before = snapshot(tmp_path / "bench")
+    out = tmp_path / "bench" / "out"
+    res = cli("analyze", "..", ".", "RUN", "--bootstrap", "20", "-o", out, "--json", cwd=home / "inner")
+    assert res.returncode == 0, res.stderr
+    names = [r["run"] for r in json.loads(res.stdout)["runs"]]
+    assert len({n.casefold() for n in names}) == 3 and not {".", ".."} & set(names), names
+    assert {p.name for p in out.iterdir() if p.is_dir()} == set(names)
+    assert snapshot(tmp_path / "bench") == {**before, **{f"out/{k}": v for k, v in snapshot(out).items()}}

@@ -79,11 +79,11 @@ def test_table_text(run_dir, capsys):
 
 def test_output_folder_and_refusal_to_overwrite(run_dir, tmp_path, capsys):
     temp = tmp_path / "temp.csv"
-    temp.write_text("time_s,temp_c\n0,20\n30,22\n61,23\n")
+    temp.write_text("t_s,temp_c\n0,20\n30,22\n61,23\n")  # the log's own time column name
     out = tmp_path / "out"
     assert main(["stability", str(run_dir), "-o", str(out), "--temperature", str(temp)]) == 0
     names = sorted(p.name for p in out.iterdir())
-    assert names == ["drift.png", "sigma_tau.png", "stability.csv", "stability.json"]
+    assert names == ["drift.png", "report.html", "sigma_tau.png", "stability.csv", "stability.json"]
     for png in ("drift.png", "sigma_tau.png"):
         assert (out / png).read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     summary = json.loads((out / "stability.json").read_text())
@@ -115,7 +115,7 @@ def test_bad_input_one_line_nothing_written(tmp_path, capsys, content, match):
     assert not out.exists()
 
 
-@pytest.mark.parametrize("opt", [["--confidence", "1.5"], ["--settle", "-1"], ["--start-s", "nan"],
+@pytest.mark.parametrize("opt", [["--confidence", "1.5"], ["--settled-hz-per-min", "-1"], ["--start-s", "nan"],
                                  ["--start-s", "1e6"], ["--start-s", "10", "--whole-log"]])
 def test_bad_options(run_dir, capsys, opt):
     assert main(["stability", str(run_dir), *opt]) == 2

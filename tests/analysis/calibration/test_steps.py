@@ -25,7 +25,7 @@ def _ar1(rng, n, phi, sigma=1.0):
     return lfilter([1.0], [1.0, -phi], e)[300:]
 
 
-@pytest.mark.parametrize("phi, n", [(0.0, 500), (0.5, 500), (0.8, 500), (0.95, 2000)])
+@pytest.mark.parametrize("phi, n", [(0.0, 500), (0.5, 500), (0.8, 500), (0.8, 200), (0.95, 2000)])
 def test_stderr_covers_68_percent_under_ar1_noise(phi, n):
     # AR(1) x_t = phi x_{t-1} + e_t has true mean 0 (Box & Jenkins, Time Series Analysis, ch. 3);
     # an honest one-sigma error covers the true mean in 68.27 % of trials (normal distribution).
@@ -33,7 +33,8 @@ def test_stderr_covers_68_percent_under_ar1_noise(phi, n):
     # _LINE_LOSS in steps.py was set on seed 12345; these draws come from other seeds (out of sample)
     rng = np.random.default_rng([20240518, int(phi * 100), n])
     # (phi = 0.8 is about the correlation of 85 ms frames at a 20 ms hop; 0.95 needs ~50
-    # correlation times of data, as any error estimate does)
+    # correlation times of data, as any error estimate does; n = 200 is a 4 s stretch, where the
+    # line-fit correction 1 / (1 - 6 tau_int / n) is about 1.4 and must be there)
     trials = 800
     hits = naive_hits = 0
     for _ in range(trials):
@@ -147,3 +148,66 @@ def test_stderr_covers_68_percent_under_noise_that_is_not_ar1(ar, ma):
     hits = sum(abs(m.mean) <= m.stderr for m in map(correlated_mean, x))
     p = stats.norm.cdf(1) - stats.norm.cdf(-1)
     assert abs(hits / trials - p) <= COVERAGE_ALLOWANCE + 3 * math.sqrt(p * (1 - p) / trials)
+
+
+# --- trimming, frame counts and edge cases (mutation survivors, issue 18) ----------------------
+
+def test_settling_trim_never_takes_more_than_a_quarter_of_a_stretch_per_end():
+    # a 2 s stretch with 1 s settling: at most 0.5 s goes from each end (a quarter), 1 s is kept
+    from coilshift.analysis.calibration.steps import segment_stats
+
+    t = np.arange(0.0, 4.0, 0.01)
+    seg = segment_stats(t, np.full(t.size, 1000.0), np.ones(t.size, bool), Marker(1.0, 3.0, "coin", 10.0),
+                        settle_s=1.0)
+    assert (seg.used_start_s, seg.used_end_s) == pytest.approx((1.5, 2.5))
+    # frames 1.50 .. 2.50 inclusive at 0.01 s
+    assert seg.stat.n == 101
+
+
+def test_eight_usable_frames_make_a_stretch_and_seven_do_not():
+    # MIN_FRAMES = 8 (steps.py): the documented minimum is itself enough
+    from coilshift.analysis.calibration.steps import segment_stats
+
+    t = np.arange(20) * 0.1
+    f = 1000.0 + np.random.default_rng(3).standard_normal(t.size)
+    usable = np.zeros(t.size, bool)
+    usable[2:10] = True
+    marker = Marker(0.0, 1.9, "coin", 10.0)
+    assert segment_stats(t, f, usable, marker, settle_s=0.0).stat.n == 8
+    usable[9] = False
+    assert segment_stats(t, f, usable, marker, settle_s=0.0) is None
+
+
+def test_three_values_already_have_a_standard_error():
+    # n >= 3 leaves one degree of freedom about the fitted line: the error is finite and positive
+    m = correlated_mean(np.array([1.0, 3.0, 2.0]))
+    assert m.mean == pytest.approx(2.0) and math.isfinite(m.stderr) and m.stderr > 0
+    two = correlated_mean(np.array([1.0, 3.0]))
+    assert two.mean == pytest.approx(2.0) and math.isnan(two.stderr)
+
+
+def test_constant_series_is_exact_and_uncorrelated():
+    # a series that the fitted line leaves no residual of (zeros: the fit is exact in floating point)
+    # has an exact mean (stderr 0), tau_int = 1 and n_eff = n by definition
+    m = correlated_mean(np.zeros(50))
+    assert (m.mean, m.stderr, m.tau_int, m.n_eff, m.converged) == (0.0, 0.0, 1.0, 50.0, True)
+
+
+def test_small_sample_widening_is_taken_at_the_one_sigma_quantile():
+    # +-1 sigma of a normal holds 68.27 %: its one-sided quantile Phi(1) = 0.841345 (standard normal
+    # table, e.g. Abramowitz & Stegun 26.2; scipy.stats.norm.cdf written differently here)
+    from coilshift.analysis.calibration import steps
+
+    assert steps._Q68 == pytest.approx(0.5 * (1 + math.erf(1 / math.sqrt(2))), abs=1e-12)
+    assert steps._Q68 == pytest.approx(0.841345, abs=5e-7)
+
+
+def test_repeats_without_usable_errors_use_the_standard_error_of_their_mean():
+    # no step error known: the error of the combined value is s / sqrt(k) with the sample standard
+    # deviation s on k - 1 degrees of freedom (Python's statistics.stdev, an independent library)
+    import statistics
+
+    xs = [1.0, 2.0, 3.0, 6.0]
+    (p,) = combine_repeats([_step(x, math.nan) for x in xs])
+    assert p.shift_hz == pytest.approx(3.0)
+    assert p.stderr_hz == pytest.approx(statistics.stdev(xs) / 2.0, rel=1e-12)

@@ -132,3 +132,21 @@ def test_duty_of_exactly_one_half_is_refused_for_two_resistors():
     # R1 = (2 duty - 1)(R1 + 2 R2) is zero at 50 %: the two-resistor circuit cannot make it
     with pytest.raises(InputError, match="above 0.5"):
         t5.design_two_resistor(1000.0, 10.0, duty=0.5)
+
+
+def test_duty_of_one_is_refused_as_a_duty_not_as_a_zero_resistor():
+    # R2 = (1 - duty)(R1 + 2 R2) vanishes at 100 %: the message must name the duty the user gave
+    with pytest.raises(InputError, match="duty 1.0 must be above 0.5 and below 1"):
+        t5.design_two_resistor(1000.0, 10.0, duty=1.0)
+
+
+@pytest.mark.parametrize("value, series, expected", [
+    (1.02e3, "E24", (910.0, 1000.0, 1100.0)),       # across the decade below
+    (9.3e3, "E24", (8200.0, 9100.0, 10000.0)),      # across the decade above
+    (4600.0, "E12", (3900.0, 4700.0, 5600.0)),
+    (1.4, "E6", (1.0, 1.5, 2.2)),
+])
+def test_design_tries_the_standard_values_either_side(value, series, expected):
+    # IEC 60063 values written out here (E6 above; E12 3.9 4.7 5.6; E24 8.2 9.1 | 1.0 1.1): the
+    # two-resistor design tries the nearest standard value and the one on each side of it
+    assert t5._neighbours(value, series) == pytest.approx(list(expected), rel=1e-12)

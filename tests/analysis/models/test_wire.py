@@ -103,3 +103,45 @@ def test_wire_spec_needs_exactly_one_size():
         wire.wire_spec(wire_diameter_mm=0.4, outer_diameter_mm=0.3)
     spec = wire.wire_spec(wire_diameter_mm=0.4, outer_diameter_mm=0.45)
     assert spec.outer_diameter_mm == 0.45 and spec.awg is None
+
+
+# --- names, limits, defaults (mutation survivors, issue 18) ----------------------------------------
+
+def test_mu0_is_codata_2018():
+    # CODATA 2018: mu0 = 1.25663706212(19) x 10^-6 H/m (value from memory, 0.15 ppb uncertainty);
+    # 4 pi x 10^-7 alone is 0.55 ppb off
+    assert wire.MU0_H_PER_M == pytest.approx(1.25663706212e-6, rel=2e-10, abs=0)
+
+
+@pytest.mark.parametrize("text, n", [("4/0", -3), ("3/0", -2), ("1/0", 0), ("0000", -3), (56, 56), (-3, -3),
+                                     ("56", 56)])
+def test_parse_awg_slash_names_and_the_ends_of_the_range(text, n):
+    # ASTM B258 naming: 4/0 = 0000, 3/0 = 000, 1/0 = 0; gauges run 0000 .. 56 (the module's range)
+    assert wire.parse_awg(text) == n
+
+
+def test_resistance_defaults_to_20_degc():
+    # IEC 60028: 0.017241 ohm mm^2/m at 20 degC; a 1 mm wire (0.785398 mm^2) has 0.021952 ohm/m
+    per_m = 0.017241 / (math.pi / 4)
+    assert wire.resistance_per_m_ohm(1.0) == pytest.approx(per_m, rel=1e-12)
+    spec = wire.wire_spec(wire_diameter_mm=1.0)
+    assert spec.resistance_per_m_ohm() == pytest.approx(per_m, rel=1e-12)
+    assert spec.area_mm2 == pytest.approx(math.pi / 4, rel=1e-12)
+    assert wire.wire_spec(wire_diameter_mm=0.5).area_mm2 == pytest.approx(0.19634954, rel=1e-8)  # pi 0.5^2 / 4
+
+
+def test_wire_spec_outer_diameter_adds_the_enamel():
+    # bare 0.40 mm grade 1: IEC 60317-0-1 maximum overall 0.439 mm (from memory, as above) within the
+    # fit's 6 micrometres; bare wire ("none") has no build
+    assert wire.wire_spec(wire_diameter_mm=0.40).outer_diameter_mm == pytest.approx(0.439, abs=0.006)
+    bare = wire.wire_spec(wire_diameter_mm=0.40, insulation="none")
+    assert bare.outer_diameter_mm == 0.40
+
+
+def test_bare_diameter_limits_are_inclusive():
+    # the message promises "between 0.005 and 20 mm": both ends are wires, anything past them is not
+    for d in (0.005, 20.0):
+        assert wire.wire_spec(wire_diameter_mm=d).bare_diameter_mm == d
+    for d in (0.0049, 20.01):
+        with pytest.raises(InputError, match="between 0.005 and 20 mm"):
+            wire.wire_spec(wire_diameter_mm=d)

@@ -60,15 +60,15 @@ def test_outputs_written_and_report_is_one_self_contained_file(run_dir, tmp_path
     paths = write_outputs([res], tmp_path)
     names = sorted(p.name for p in paths)
     assert names == sorted(["steps.csv", "points.csv", "result.json", "curves.png", "timeseries.png",
-                            "residuals.png", "report.html"])
-    for png in ("curves.png", "timeseries.png", "residuals.png"):
+                            "residuals.png", "baseline_noise.png", "report.html"])
+    for png in ("curves.png", "timeseries.png", "residuals.png", "baseline_noise.png"):
         assert (tmp_path / png).read_bytes()[:8] == PNG_MAGIC
     rows = list(csv.reader(io.StringIO((tmp_path / "steps.csv").read_text())))
     assert rows[0][:5] == ["target", "distance_mm", "shift_hz", "stderr_hz", "n"]
     assert len(rows) == 1 + 12
     page = (tmp_path / "report.html").read_text()
     imgs = re.findall(r'src="data:image/png;base64,([A-Za-z0-9+/=]+)"', page)
-    assert len(imgs) == 3 and all(base64.b64decode(i)[:8] == PNG_MAGIC for i in imgs)
+    assert len(imgs) == 4 and all(base64.b64decode(i)[:8] == PNG_MAGIC for i in imgs)
     assert "src=\"http" not in page and "src=\"file" not in page  # nothing outside the file
     # the polarity caution and the field caution are in every report
     assert "--polarity inverted" in page and "Nyquist" in page and "local law" in page

@@ -26,9 +26,9 @@ def result():
     return analyse_stability(t, f, np.isfinite(f), frame_s=0.085)
 
 
-def test_four_files_in_order(result, tmp_path):
+def test_five_files_in_order(result, tmp_path):
     paths = write_stability_outputs(result, tmp_path)
-    assert [p.name for p in paths] == ["sigma_tau.png", "drift.png", "stability.csv", "stability.json"]
+    assert [p.name for p in paths] == ["sigma_tau.png", "drift.png", "stability.csv", "stability.json", "report.html"]
     assert sorted(p.name for p in tmp_path.iterdir()) == sorted(p.name for p in paths)
     for p in paths[:2]:
         assert p.read_bytes()[:8] == PNG_MAGIC

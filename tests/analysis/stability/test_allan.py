@@ -148,3 +148,70 @@ def test_too_short_gives_no_terms():
     assert n[0] == 0 and np.isnan(dev[0])
     assert list(allan.octave_factors(9)) == [1, 2]  # MDEV needs 3m - 1 samples
     assert allan.octave_factors(1).size == 0
+
+
+# --- the shortest records and precision with gaps (mutation survivors, issue 18) ----------------
+
+def _direct(kind, y, m):
+    """NIST SP 1065 section 4, phase form with tau0 = 1, written term by term (x = running sum of y,
+    N + 1 phase points): ADEV from non-overlapping second differences of x at stride m, OADEV from
+    every second difference x[i+2m] - 2x[i+m] + x[i], MDEV from sums of m of them (eq. 14)."""
+    x = np.concatenate(([0.0], np.cumsum(y)))
+    d2 = np.array([x[i + 2 * m] - 2 * x[i + m] + x[i] for i in range(len(x) - 2 * m)])
+    if kind == "adev":
+        d = d2[::m]
+        return math.sqrt(np.sum(d ** 2) / (2 * m * m * d.size)), d.size
+    if kind == "oadev":
+        return math.sqrt(np.sum(d2 ** 2) / (2 * m * m * d2.size)), d2.size
+    sums = np.array([d2[j:j + m].sum() for j in range(len(x) - 3 * m + 1)])
+    return math.sqrt(np.sum(sums ** 2) / (2 * m ** 4 * sums.size)), sums.size
+
+
+@pytest.mark.parametrize("kind, shortest", [("adev", lambda m: 2 * m), ("oadev", lambda m: 2 * m),
+                                            ("mdev", lambda m: 3 * m - 1)])
+@pytest.mark.parametrize("m", [1, 3, 8])
+def test_shortest_record_has_one_term_and_one_sample_less_has_none(kind, shortest, m):
+    # ADEV and OADEV need 2m frequency samples, MDEV 3m - 1 (SP 1065: 2m + 1 and 3m phase points)
+    rng = np.random.default_rng(40 + m)
+    y = rng.standard_normal(shortest(m))
+    dev, n = getattr(allan, kind)(y, [m])
+    ref, n_ref = _direct(kind, y, m)
+    assert n[0] == n_ref == 1 and dev[0] == pytest.approx(ref, rel=1e-9)
+    # family() shares one set of running sums and must agree, edge included
+    fam_dev, fam_n = allan.family(y, [m])[kind]
+    assert fam_n[0] == 1 and fam_dev[0] == pytest.approx(ref, rel=1e-9)
+    dev, n = getattr(allan, kind)(y[:-1], [m])
+    assert n[0] == 0 and np.isnan(dev[0])
+    fam_dev, fam_n = allan.family(y[:-1], [m])[kind]
+    assert fam_n[0] == 0 and np.isnan(fam_dev[0])
+
+
+def test_octave_factors_reach_the_longest_that_mdev_allows():
+    # MDEV at m needs 3m - 1 samples: 11 samples allow m = 4, 10 do not
+    assert list(allan.octave_factors(11)) == [1, 2, 4]
+    assert list(allan.octave_factors(10)) == [1, 2]
+
+
+def test_mdev_with_a_gap_keeps_its_precision_on_fractional_frequency():
+    # fractional-frequency data of a good oscillator (1e-11 scale, SP 1065's usual unit) with a gap:
+    # the pooled terms of the two gap-free halves, summed directly, to 1e-9 relative
+    rng = np.random.default_rng(44)
+    y = 1e-11 * rng.standard_normal(600)
+    y[290:310] = np.nan
+    m = 8
+    dev, n = allan.mdev(y, [m])
+    parts = [_direct("mdev", y[:290] - np.nanmean(y), m), _direct("mdev", y[310:] - np.nanmean(y), m)]
+    total = sum(r ** 2 * k for r, k in parts)
+    count = sum(k for _, k in parts)
+    # abs=0: pytest.approx's default absolute tolerance (1e-12) would swallow values of 1e-12
+    assert n[0] == count and dev[0] == pytest.approx(math.sqrt(total / count), rel=1e-9, abs=0)
+
+
+@pytest.mark.parametrize("n", [16, 19, 20, 21, 22])
+def test_records_between_2m_and_3m_minus_2_give_adev_but_no_mdev(n):
+    # m = 8: OADEV needs 16 samples, MDEV 23 (3m - 1); in between MDEV has no term (SP 1065)
+    y = np.random.default_rng(45 + n).standard_normal(n)
+    fam = allan.family(y, [8])
+    assert fam["oadev"][1][0] == n - 16 + 1 and fam["mdev"][1][0] == 0 and np.isnan(fam["mdev"][0][0])
+    dev, count = allan.mdev(y, [8])
+    assert count[0] == 0 and np.isnan(dev[0])

@@ -155,6 +155,29 @@ def test_a_disk_error_names_the_output_not_its_building_place(tmp_path):
     assert not out.exists()
 
 
+@pytest.mark.parametrize("when", ["before", "during"])
+def test_an_output_folder_another_command_is_writing_is_refused_and_left_alone(tmp_path, when):
+    # two commands with --force into one folder (or one into a folder a capture is writing):
+    # the one that finds the folder locked, at the start or at its swap, changes nothing there
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "report.html").write_text("the other command's report\n")
+    (out / "keep.txt").write_text("mine\n")
+    before = _tree(out)
+    other = FolderLock(out) if when == "before" else None
+    try:
+        with pytest.raises(InputError, match="another coilshift command"):
+            with building_output_dir(out, force=True) as build:
+                (build / "report.html").write_text("new report\n")
+                (build / "steps.csv").write_text("new\n")
+                other = FolderLock(out)  # the other command took the folder while this one worked
+    finally:
+        if other is not None:
+            other.release()
+    assert _tree(out) == before
+    assert not [p for p in tmp_path.iterdir() if BUILDING in p.name]
+
+
 def _umask() -> int:
     mask = os.umask(0)
     os.umask(mask)

@@ -138,3 +138,75 @@ def test_jacobsen_windowed_hamming_uses_its_own_q(delta):
     got = est.jacobsen_windowed(xl, xp, xr, "hamming")
     assert got == pytest.approx(np.real(0.60 * (xl - xr) / (2 * xp + xl + xr)), rel=1e-12)
     assert abs(got - delta) <= 0.03
+
+
+def _quinn1997_written_out(xl, xp, xr):
+    # Quinn 1997 (IEEE Trans. SP 45(3)) [pub], second estimator, written term by term:
+    # alpha+- = Re(X[k+-1] X[k]*) / |X[k]|^2, delta+ = -alpha+ / (1 - alpha+), delta- = alpha- / (1 - alpha-),
+    # delta = (delta+ + delta-) / 2 + tau(delta+^2) - tau(delta-^2),
+    # tau(x) = log(3x^2 + 6x + 1) / 4 - sqrt(6) / 24 log((x + 1 - sqrt(2/3)) / (x + 1 + sqrt(2/3)))
+    p2 = (xp * np.conj(xp)).real
+    a_plus = (xr * np.conj(xp)).real / p2
+    a_minus = (xl * np.conj(xp)).real / p2
+    d_plus = a_plus / (a_plus - 1.0)
+    d_minus = a_minus / (1.0 - a_minus)
+    c = np.sqrt(2.0) / np.sqrt(3.0)
+
+    def tau(x):
+        return np.log(3.0 * x ** 2 + 6.0 * x + 1.0) / 4.0 - np.sqrt(6.0) / 24.0 * (np.log(x + 1.0 - c)
+                                                                                - np.log(x + 1.0 + c))
+
+    return 0.5 * (d_plus + d_minus) + tau(d_plus ** 2) - tau(d_minus ** 2)
+
+
+def test_quinn2_matches_the_published_formula_on_noisy_samples():
+    # With noise delta+ != delta-, so the tau terms (zero on a clean tone) decide the result:
+    # 400 noisy tones (7.4 dB per sample: noise variance 2 x 0.3^2), each equal to the formula above
+    n, k = 64, 10
+    rng = np.random.default_rng(5)
+    deltas = rng.uniform(-0.45, 0.45, 400)
+    x = complex_tone(n, k, deltas[:, None])
+    x = x + 0.3 * (rng.standard_normal(x.shape) + 1j * rng.standard_normal(x.shape))
+    spec = np.fft.fft(x, axis=-1)
+    xl, xp, xr = spec[:, k - 1], spec[:, k], spec[:, k + 1]
+    ref = _quinn1997_written_out(xl, xp, xr)
+    ok = np.isfinite(ref)
+    assert ok.mean() > 0.95
+    got = est.quinn2(xl, xp, xr)
+    assert np.allclose(got[ok], ref[ok], rtol=1e-9, atol=1e-12)
+    # the tau terms matter here: the estimate differs from Quinn's plain average (delta+ + delta-) / 2
+    a_plus, a_minus = (xr / xp).real, (xl / xp).real
+    plain = 0.5 * (a_plus / (a_plus - 1.0) + a_minus / (1.0 - a_minus))
+    assert np.max(np.abs(ref[ok] - plain[ok])) > 1e-3
+
+
+def test_aboutanios_mulgrew_default_is_two_iterations():
+    # Aboutanios & Mulgrew 2005 [pub]: two iterations. Written here with numpy.fft instead of direct
+    # sums: X(k + d +- 1/2) is bin k of the FFT of x[n] exp(-2j pi (d +- 1/2) n / N). On noisy tones a
+    # third iteration moves the estimate by more than the 1e-9 tolerance.
+    n, k = 128, 20
+    rng = np.random.default_rng(8)
+    deltas = rng.uniform(-0.5, 0.5, 50)
+    x = complex_tone(n, k, deltas[:, None])
+    x = x + 0.5 * (rng.standard_normal(x.shape) + 1j * rng.standard_normal(x.shape))
+    i = np.arange(n)
+
+    def at(d):
+        return np.fft.fft(x * np.exp(-2j * np.pi * d[:, None] * i / n), axis=-1)[:, k]
+
+    d = np.zeros(len(deltas))
+    steps = []
+    for _ in range(3):
+        xp, xm = at(d + 0.5), at(d - 0.5)
+        d = d + 0.5 * ((xp + xm) / (xp - xm)).real
+        steps.append(d.copy())
+    assert np.max(np.abs(steps[2] - steps[1])) > 1e-6
+    assert np.allclose(est.aboutanios_mulgrew(x, np.full(len(deltas), k)), steps[1], rtol=0, atol=1e-9)
+
+
+def test_grandke_hann_of_an_empty_spectrum_is_zero_not_nan():
+    # a silent frame (all three magnitudes zero) gives the documented 0, never the 0/0 NaN
+    got = est.grandke_hann([0.0, 1.0], [0.0, 0.25], [0.0, 0.5])
+    assert got[0] == 0.0
+    # and a live one follows delta = s (2a - 1) / (a + 1) with a = 0.5, s = +1 (Grandke 1983): 0
+    assert got[1] == pytest.approx(0.0, abs=1e-15)
