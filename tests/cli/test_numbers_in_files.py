@@ -97,7 +97,8 @@ def _temperature_case(col, x):
 
     def make(d):
         f = d / f"temperature-{col}-{x}.csv"
-        f.write_text("t_s,temp_c\n" + "".join(
+        # the time column under its older name, which every version reads
+        f.write_text("time_s,temp_c\n" + "".join(
             f"{x if (col == 't_s' and i == row) else i},{x if (col == 'temp_c' and i == row) else 20 + 0.01 * i}\n"
             for i in range(60)))
         return ["stability", d / "run", "--temperature", f], f.name
