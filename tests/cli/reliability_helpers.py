@@ -90,7 +90,7 @@ def write_small_run(run_dir, n=3000, hop=0.02, f0=20000.0, with_markers=True) ->
 #: runs coilshift on a terminal of its own (``os.forkpty``: the terminal is the command's
 #: controlling terminal, in a session of its own), so the test process never owns a terminal.
 #: argv: WAIT_FOR ACTION COILSHIFT-ARGS...; WAIT_FOR is text the command prints or a path that
-#: must exist; ACTION is "ctrl-c" (type Ctrl-C) or "close" (close the terminal, 1 s later).
+#: must exist; ACTION is "ctrl-c" (type Ctrl-C, 0.5 s later) or "close" (close the terminal, 1 s later).
 #: Prints what the command printed; exits with the command's status.
 ON_A_TERMINAL = r"""
 import os, select, sys, time
@@ -108,6 +108,9 @@ while not ready() and time.monotonic() < deadline:
         except OSError:
             break
 if action == "ctrl-c":
+    # as a person would, a moment after the prompt: a signal that lands between the prompt's
+    # write and the read that follows is noted by Python but does not end that read
+    time.sleep(0.5)
     os.write(fd, b"\x03")
 else:
     time.sleep(1.0)
