@@ -332,3 +332,31 @@ def fit_power_law(distance_mm, shift_hz, stderr_hz, start: dict | None = None, c
 
     return _gls(model, ("c_hz", "p"), ["c_hz", "p"], {}, [start["c_hz"], start["p"]], np.array([-np.inf, 1e-3]),
                 np.array([np.inf, 50.0]), d, y, c, placement_mm, POWER, {})
+
+
+def fit_curves(distance_mm, shift_hz, stderr_hz, cov=None, coil=None, placement_mm: float = 0.0,
+               fit_offset: bool = False, sphere_mm: float = 0.0) -> tuple[CurveFit | None, str, CurveFit | None]:
+    """The main fit and the power law of one target's points: ``(fit, reason, power)``.
+
+    The main fit is the finite-winding law when the coil is known (``coil``, with the sphere's
+    diameter ``sphere_mm`` where given), else the single-loop law; ``reason`` says why there is
+    none. ``power`` is :func:`fit_power_law`, or None where it cannot be fitted.
+    """
+    fit, reason, power = None, "", None
+    try:
+        if coil is not None:
+            from coilshift.analysis.models.windinglaw import winding_shape
+
+            fit = fit_winding(distance_mm, shift_hz, stderr_hz, lambda dd: winding_shape(coil, dd, sphere_mm),
+                              fit_offset=fit_offset, cov=cov, placement_mm=placement_mm,
+                              shape_from="coil file" + (f", {sphere_mm:g} mm sphere" if sphere_mm > 0 else ""))
+        else:
+            fit = fit_dipole(distance_mm, shift_hz, stderr_hz, fit_offset=fit_offset, cov=cov,
+                             placement_mm=placement_mm)
+    except FitError as exc:
+        reason = f"no curve: {exc}"
+    try:
+        power = fit_power_law(distance_mm, shift_hz, stderr_hz, cov=cov, placement_mm=placement_mm)
+    except FitError:
+        power = None
+    return fit, reason, power

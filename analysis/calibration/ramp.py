@@ -31,7 +31,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from coilshift.analysis.calibration.curvefit import FitError, fit_dipole, fit_power_law, fit_winding
+from coilshift.analysis.calibration.curvefit import fit_curves
 from coilshift.analysis.calibration.defaults import DEFAULT_K, DEFAULT_PLACEMENT_MM, DEFAULT_SEED
 from coilshift.analysis.calibration.detection import RangeResult, detection_range
 from coilshift.analysis.calibration.significance import family_test
@@ -190,25 +190,6 @@ def ramp_points(t, y, ok, markers, spec: RampSpec, bins: int, side_s: float = 10
     return (np.asarray(d_out), np.asarray(s_out), _covariance(vg, combos), np.asarray(n_out), by, ay)
 
 
-def _fits(d, y, e, cov, coil, placement_mm):
-    fit, reason, power = None, "", None
-    try:
-        if coil is not None:
-            from coilshift.analysis.models.windinglaw import winding_shape
-
-            fit = fit_winding(d, y, e, lambda dd: winding_shape(coil, dd, 0.0), cov=cov, placement_mm=placement_mm,
-                              shape_from="coil file")
-        else:
-            fit = fit_dipole(d, y, e, cov=cov, placement_mm=placement_mm)
-    except FitError as exc:
-        reason = f"no curve: {exc}"
-    try:
-        power = fit_power_law(d, y, e, cov=cov, placement_mm=placement_mm)
-    except FitError:
-        power = None
-    return fit, reason, power
-
-
 def analyse_ramp(path: str | os.PathLike, spec: RampSpec, markers_path: str | os.PathLike | None = None, *,
                  bins: int = DEFAULT_BINS, threshold_hz: float | None = None, threshold_edf: float = math.inf,
                  k: float = DEFAULT_K, coil=None, placement_mm: float = DEFAULT_PLACEMENT_MM,
@@ -241,7 +222,7 @@ def analyse_ramp(path: str | os.PathLike, spec: RampSpec, markers_path: str | os
     fit = power = None
     reason = "not detected: no significant shift, so no curve"
     if sig.seen:
-        fit, reason, power = _fits(d, s, e, cov, coil, placement_mm)
+        fit, reason, power = fit_curves(d, s, e, cov, coil, placement_mm)
     src = "given"
     if threshold_hz is None:
         base = np.zeros(t.size, bool)

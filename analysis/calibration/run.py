@@ -28,7 +28,7 @@ from coilshift.logger.runfolder.reader import FrequencyLog, read_log
 
 from coilshift.analysis.calibration import classify as _classify
 from coilshift.analysis.calibration.covariance import point_covariance
-from coilshift.analysis.calibration.curvefit import CurveFit, FitError, fit_dipole, fit_power_law, fit_winding
+from coilshift.analysis.calibration.curvefit import CurveFit, fit_curves
 from coilshift.analysis.calibration.defaults import DEFAULT_PLACEMENT_MM
 from coilshift.analysis.calibration.detection import (DEFAULT_BOOTSTRAP, DEFAULT_K, DEFAULT_SEED, RangeResult,
                                                       detection_range, numeric_range_mm)
@@ -341,29 +341,6 @@ class _TargetOptions:
     baseline_hz: float
 
 
-def _fits(d, y, e, cov, o: _TargetOptions, spec) -> tuple[CurveFit | None, str, CurveFit | None]:
-    """The main fit (finite-winding law with a coil, else single loop) and the power law."""
-    fit, reason, power = None, "", None
-    try:
-        if o.coil is not None:
-            from coilshift.analysis.models.windinglaw import winding_shape
-
-            diam = float(spec.diameter_mm) if spec is not None else 0.0
-            coil = o.coil
-            fit = fit_winding(d, y, e, lambda dd: winding_shape(coil, dd, diam), fit_offset=o.fit_offset,
-                              cov=cov, placement_mm=o.placement_mm,
-                              shape_from="coil file" + (f", {diam:g} mm sphere" if diam > 0 else ""))
-        else:
-            fit = fit_dipole(d, y, e, fit_offset=o.fit_offset, cov=cov, placement_mm=o.placement_mm)
-    except FitError as exc:
-        reason = f"no curve: {exc}"
-    try:
-        power = fit_power_law(d, y, e, cov=cov, placement_mm=o.placement_mm)
-    except FitError:
-        power = None
-    return fit, reason, power
-
-
 def _analyse_target(tname: str, pts: list[Point], o: _TargetOptions, spec) -> TargetResult:
     """One target: the call, and for a seen target the fits and the range with its interval."""
     d = [p.distance_mm for p in pts]
@@ -375,7 +352,8 @@ def _analyse_target(tname: str, pts: list[Point], o: _TargetOptions, spec) -> Ta
     fit = power = None
     reason = "not detected: no significant shift, so no curve"
     if seen:
-        fit, reason, power = _fits(d, y, e, cov, o, spec)
+        fit, reason, power = fit_curves(d, y, e, cov, o.coil, o.placement_mm, o.fit_offset,
+                                        float(spec.diameter_mm) if spec is not None else 0.0)
     sign = -1.0 if (call.z < 0 if math.isfinite(call.z) else sum(y) < 0) else 1.0
     rng_res = detection_range(d, y, cov, o.threshold_hz, seen=seen, sign=sign, threshold_edf=o.threshold_edf,
                               placement_mm=o.placement_mm, fit=fit, power=power, n_draws=o.n_draws, seed=o.seed,

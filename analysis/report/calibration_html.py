@@ -17,6 +17,7 @@ from coilshift.analysis.calibration.significance import FAMILY_ALPHA
 from coilshift.analysis.report.calibration_text import (fit_text, prediction_text, range_text, threshold_text,
                                                         uncertainty_rows)
 from coilshift.analysis.report.html_page import Provenance, howto, img, page, provenance, table
+from coilshift.analysis.report.cells import cell_text
 
 RANGE_CAUTION = ("Ranges hold for this coil, oscillator, target, orientation and surroundings; ground "
                  "minerals, nearby metal, temperature and a different target size or angle change them. "
@@ -40,9 +41,6 @@ HOW_TO_READ = [
     "run in time with the stretches shaded, and the fits' residuals in standard errors.",
 ]
 
-
-def _f(x, fmt="{:.6g}") -> str:
-    return "" if x is None or (isinstance(x, float) and not math.isfinite(x)) else fmt.format(x)
 
 
 def sensitivity_hz_per_mm(t) -> float:
@@ -68,7 +66,7 @@ def _target_rows(res: CalibrationResult) -> list[list[str]]:
     rows = []
     for t in res.targets:
         sens = sensitivity_hz_per_mm(t)
-        rows.append([t.target, t.cls, t.classification.reason, range_text(t), _f(abs(sens), "{:.3g}")])
+        rows.append([t.target, t.cls, t.classification.reason, range_text(t), cell_text(abs(sens), "{:.3g}")])
     return rows
 
 
@@ -89,7 +87,7 @@ def _point_rows(res: CalibrationResult) -> list[list]:
     points = [p for t in res.targets for p in t.points]
     repeated = any(p.repeats > 1 for p in points)  # with one repeat each, "repeats agree" says nothing
     return [[p.target, f"{p.distance_mm:g}", f"{p.shift_hz:+.5f}", f"{p.stderr_hz:.5f}",
-             _f(1e6 * p.shift_hz / base, "{:+.4g}"), _f(1e6 * p.stderr_hz / base, "{:.2g}"), p.n,
+             cell_text(1e6 * p.shift_hz / base, "{:+.4g}"), cell_text(1e6 * p.stderr_hz / base, "{:.2g}"), p.n,
              p.repeats if repeated else "", ("yes" if p.consistent else "NO") if repeated else ""]
             for p in points]
 
@@ -98,8 +96,8 @@ def _run_section(res: CalibrationResult, images: dict[str, bytes]) -> str:
     parts = [f"<h2>Run {html.escape(res.name)}</h2>",
              f"<p>Source <code>{html.escape(res.source)}</code>; baseline {res.baseline_hz:.4f} Hz; dwell "
              f"{res.dwell_s:.3g} s (settling {res.settle_s:g} s removed at each end of every stretch); "
-             f"noise (overlapping Allan deviation of the baselines) {_f(res.noise_hz, '{:.4g}') or 'unknown'} Hz "
-             f"at {_f(res.noise_tau_s, '{:.3g}') or '-'} s; {html.escape(threshold_text(res))}; placement "
+             f"noise (overlapping Allan deviation of the baselines) {cell_text(res.noise_hz, '{:.4g}') or 'unknown'} Hz "
+             f"at {cell_text(res.noise_tau_s, '{:.3g}') or '-'} s; {html.escape(threshold_text(res))}; placement "
              f"tolerance ±{res.placement_mm:g} mm; polarity {res.polarity}.</p>"]
     parts.append("<h3>Targets</h3>")
     parts.append(table(["target", "call", "evidence", "detection range",
@@ -171,8 +169,8 @@ def _comparison(results: list[CalibrationResult], names: list[str], compare_png:
             cells.append(row.cls.get(n, "-"))
         body.append(cells)
     thr = table(["run", "threshold (Hz)", "how it was set", "noise at the dwell (Hz)", "dwell (s)"],
-                [[n, _f(r.threshold_hz, "{:.4g}"), r.threshold_source, _f(r.noise_hz, "{:.4g}"),
-                  _f(r.dwell_s, "{:.3g}")] for n, r in zip(names, results)])
+                [[n, cell_text(r.threshold_hz, "{:.4g}"), r.threshold_source, cell_text(r.noise_hz, "{:.4g}"),
+                  cell_text(r.dwell_s, "{:.3g}")] for n, r in zip(names, results)])
     out = "<h2>Runs compared</h2>" + table(header, body) + "<p>Thresholds of the runs:</p>" + thr
     if compare_png is not None:
         out += img(compare_png, "runs compared")

@@ -9,7 +9,6 @@ from __future__ import annotations
 import csv
 import io
 import json
-import math
 import os
 from pathlib import Path
 
@@ -21,6 +20,7 @@ from coilshift.analysis.calibration.compare import compare_runs, unique_names
 from coilshift.analysis.report.calibration_html import FIELD_CAUTION, RANGE_CAUTION, report_html  # noqa: F401
 from coilshift.analysis.report.calibration_text import fit_text, prediction_text, range_text, threshold_text
 from coilshift.analysis.report.html_page import Provenance
+from coilshift.analysis.report.cells import cell_text
 
 STEP_COLUMNS = ("target", "distance_mm", "shift_hz", "stderr_hz", "n", "start_s", "end_s", "baseline_hz",
                 "bracketed", "unbracketed_shift_hz", "note")
@@ -29,9 +29,6 @@ POINT_COLUMNS = ("target", "distance_mm", "shift_hz", "stderr_hz", "n", "repeats
 
 
 
-def _f(x, fmt="{:.6g}") -> str:
-    return "" if x is None or (isinstance(x, float) and not math.isfinite(x)) else fmt.format(x)
-
 
 def steps_csv(res: CalibrationResult) -> str:
     """Every target stretch: ``target, distance_mm, shift_hz, stderr_hz, n`` then details."""
@@ -39,9 +36,9 @@ def steps_csv(res: CalibrationResult) -> str:
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(STEP_COLUMNS)
     for s in res.steps:
-        w.writerow([s.target, _f(s.distance_mm, "{:g}"), _f(s.shift_hz, "{:.6f}"), _f(s.stderr_hz, "{:.6f}"), s.n,
-                    _f(s.start_s, "{:.3f}"), _f(s.end_s, "{:.3f}"), _f(s.baseline_hz, "{:.6f}"),
-                    "yes" if s.bracketed else "no", _f(s.unbracketed_shift_hz, "{:.6f}"), s.note])
+        w.writerow([s.target, cell_text(s.distance_mm, "{:g}"), cell_text(s.shift_hz, "{:.6f}"), cell_text(s.stderr_hz, "{:.6f}"), s.n,
+                    cell_text(s.start_s, "{:.3f}"), cell_text(s.end_s, "{:.3f}"), cell_text(s.baseline_hz, "{:.6f}"),
+                    "yes" if s.bracketed else "no", cell_text(s.unbracketed_shift_hz, "{:.6f}"), s.note])
     return buf.getvalue()
 
 
@@ -52,8 +49,8 @@ def points_csv(res: CalibrationResult) -> str:
     w.writerow(POINT_COLUMNS)
     for t in res.targets:
         for p in t.points:
-            w.writerow([p.target, _f(p.distance_mm, "{:g}"), _f(p.shift_hz, "{:.6f}"), _f(p.stderr_hz, "{:.6f}"),
-                        p.n, p.repeats, _f(p.chi2, "{:.3f}"), "yes" if p.consistent else "no"])
+            w.writerow([p.target, cell_text(p.distance_mm, "{:g}"), cell_text(p.shift_hz, "{:.6f}"), cell_text(p.stderr_hz, "{:.6f}"),
+                        p.n, p.repeats, cell_text(p.chi2, "{:.3f}"), "yes" if p.consistent else "no"])
     return buf.getvalue()
 
 
@@ -65,7 +62,7 @@ def summary_lines(res: CalibrationResult) -> list[str]:
     """Plain-text summary for the terminal."""
     lines = [f"run {res.source}: {len(res.steps)} target stretch(es), dwell {res.dwell_s:.3g} s, "
              f"baseline {res.baseline_hz:.4f} Hz",
-             f"noise {_f(res.noise_hz, '{:.4g}') or 'unknown'} Hz at {_f(res.noise_tau_s, '{:.3g}') or '-'} s; "
+             f"noise {cell_text(res.noise_hz, '{:.4g}') or 'unknown'} Hz at {cell_text(res.noise_tau_s, '{:.3g}') or '-'} s; "
              f"{threshold_text(res)}; placement tolerance +-{res.placement_mm:g} mm; polarity {res.polarity}"]
     for t in res.targets:
         lines.append(f"  {t.target}: {_call_text(t)}")

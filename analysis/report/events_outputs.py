@@ -6,19 +6,16 @@ import csv
 import html
 import io
 import json
-import math
 import os
 from pathlib import Path
 
 from coilshift.analysis.events.find import EventsResult
 from coilshift.logger.runfolder.atomic import to_jsonable, write_text_atomic
+from coilshift.analysis.report.cells import cell_text
 
 COLUMNS = ("event", "start_s", "end_s", "duration_s", "peak_t_s", "peak_shift_hz", "peak_u_hz", "ci95_lo_hz",
            "ci95_hi_hz", "sign", "class", "strength", "baseline_before_hz", "baseline_after_hz")
 
-
-def _f(x, fmt: str = "{:.6g}") -> str:
-    return "" if x is None or (isinstance(x, float) and not math.isfinite(x)) else fmt.format(x)
 
 
 def events_summary(res: EventsResult) -> dict:
@@ -41,10 +38,10 @@ def events_csv(res: EventsResult) -> str:
     w.writerow(COLUMNS)
     for i, ev in enumerate(res.events):
         lo, hi = ev.ci95_hz
-        w.writerow([i + 1, _f(ev.start_s, "{:.3f}"), _f(ev.end_s, "{:.3f}"), _f(ev.duration_s, "{:.3f}"),
-                    _f(ev.peak_t_s, "{:.3f}"), _f(ev.peak_shift_hz, "{:.6f}"), _f(ev.peak_u_hz, "{:.6f}"),
-                    _f(lo, "{:.6f}"), _f(hi, "{:.6f}"), ev.sign, ev.kind, _f(ev.strength, "{:.3g}"),
-                    _f(ev.baseline_before_hz, "{:.6f}"), _f(ev.baseline_after_hz, "{:.6f}")])
+        w.writerow([i + 1, cell_text(ev.start_s, "{:.3f}"), cell_text(ev.end_s, "{:.3f}"), cell_text(ev.duration_s, "{:.3f}"),
+                    cell_text(ev.peak_t_s, "{:.3f}"), cell_text(ev.peak_shift_hz, "{:.6f}"), cell_text(ev.peak_u_hz, "{:.6f}"),
+                    cell_text(lo, "{:.6f}"), cell_text(hi, "{:.6f}"), ev.sign, ev.kind, cell_text(ev.strength, "{:.3g}"),
+                    cell_text(ev.baseline_before_hz, "{:.6f}"), cell_text(ev.baseline_after_hz, "{:.6f}")])
     return buf.getvalue()
 
 

@@ -17,10 +17,8 @@ from matplotlib.ticker import FuncFormatter
 from coilshift.analysis.calibration.classify import format_p
 from coilshift.analysis.calibration.run import CalibrationResult, TargetResult
 from coilshift.analysis.report.calibration_text import MODEL_NAMES
-from coilshift.analysis.report.figures import COLORS, save_png, subplots
+from coilshift.analysis.report.figures import COLORS, decimate_trace, save_png, subplots
 
-#: at most this many points of a long log are drawn (min/max per bucket keeps the envelope)
-MAX_TRACE_POINTS = 20000
 #: resolution of the calibration plots (the HTML report embeds them; the other plots use figures.DPI)
 DPI = 110
 
@@ -128,28 +126,11 @@ def _floor_axis(ax, res: CalibrationResult) -> None:
         ax.set_ylim(min(mags) / 5, max(mags) * 3)
 
 
-def _decimate(t: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    if t.size <= MAX_TRACE_POINTS:
-        return t, y
-    n = MAX_TRACE_POINTS // 2
-    edges = np.linspace(0, t.size, n + 1).astype(int)
-    tt, yy = [], []
-    for a, b in zip(edges[:-1], edges[1:]):
-        seg = y[a:b]
-        if not np.isfinite(seg).any():
-            continue
-        i, j = a + int(np.nanargmin(seg)), a + int(np.nanargmax(seg))
-        for k in sorted((i, j)):
-            tt.append(t[k])
-            yy.append(y[k])
-    return np.array(tt), np.array(yy)
-
-
 def plot_timeseries(res: CalibrationResult, path: str | os.PathLike | None = None) -> bytes:
     """Shift against time with target stretches shaded and the interpolated baseline drawn."""
     fig, ax = subplots(figsize=(11, 5))
     log = res.log
-    t, y = _decimate(log.t_s, log.freq_hz - res.baseline_hz)
+    t, y = decimate_trace(log.t_s, log.freq_hz - res.baseline_hz)
     ax.plot(t, y, "-", color="0.25", lw=0.6, label="tracked frequency - baseline")
     names = [tr.target for tr in res.targets]
     for b in res.baselines:

@@ -8,26 +8,11 @@ import os
 import numpy as np
 
 from coilshift.analysis.events.find import EventsResult
-from coilshift.analysis.report.figures import DPI, save_png, subplots
+from coilshift.analysis.report.figures import DPI, decimate_trace, save_png, subplots
 from coilshift.logger.events.measure import FERROUS, NON_FERROUS
 
 KIND_COLORS = {FERROUS: "#c0392b", NON_FERROUS: "#2471a3"}
 OTHER_COLOR = "0.5"
-MAX_TRACE_POINTS = 20000
-
-
-def _decimate(t: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """At most MAX_TRACE_POINTS points: each slice's lowest and highest, in time order."""
-    if t.size <= MAX_TRACE_POINTS:
-        return t, y
-    edges = np.linspace(0, t.size, MAX_TRACE_POINTS // 2 + 1).astype(int)
-    keep = []
-    for a, b in zip(edges[:-1], edges[1:]):
-        seg = y[a:b]
-        if np.isfinite(seg).any():
-            keep += sorted((a + int(np.nanargmin(seg)), a + int(np.nanargmax(seg))))
-    keep = np.asarray(keep, int)
-    return t[keep], y[keep]
 
 
 def plot_events(res: EventsResult, path: str | os.PathLike | None = None) -> bytes:
@@ -36,7 +21,7 @@ def plot_events(res: EventsResult, path: str | os.PathLike | None = None) -> byt
     log = res.log
     ok = log.usable()
     ref = float(np.median(log.freq_hz[ok])) if np.any(ok) else 0.0
-    t, y = _decimate(log.t_s, np.where(ok, log.freq_hz - ref, np.nan))
+    t, y = decimate_trace(log.t_s, np.where(ok, log.freq_hz - ref, np.nan))
     ax.plot(t, y, "-", color="0.25", lw=0.6, label="tracked frequency")
     for i, ev in enumerate(res.events):
         c = KIND_COLORS.get(ev.kind, OTHER_COLOR)

@@ -114,18 +114,26 @@ def _harmonic_content(plan: Plan, power, detect, f, pos, inside):
     image. A pure tone shows none of them, so the places folding would hide under its own line
     say nothing about it; near 0 Hz nothing is looked for (a DC offset is not a harmonic).
     """
-    rows = np.arange(power.shape[0])[:, None]
-    low = f[:, None] * _LOW_HARMONICS
-    low_in = low <= plan.nbins - 3
-    lines = power[rows, clamp(np.rint(low).astype(int), 0, plan.nbins - 1)] > detect[:, None]
+    lines, low_in = low_harmonic_lines(plan, power, detect, f)
     found = np.any(lines & low_in, axis=1)
     top = pos > plan.nbins - 4
     edge = power[:, plan.nbins - 3:].max(axis=1) > detect
     return found | ((np.any(top, axis=1) | ~low_in.all(axis=1)) & edge)
 
 
-#: the low harmonics looked for as signs of a waveform that is not a pure tone
-_LOW_HARMONICS = np.array([2.0, 3.0, 4.0, 5.0])[None, :]
+#: the harmonics that tell a pure tone from a waveform whose harmonics fold
+LOW_HARMONICS = np.array([2.0, 3.0, 4.0, 5.0])[None, :]
+
+
+def low_harmonic_lines(plan: Plan, power, detect, f):
+    """Lines at harmonics 2..5 of ``f`` (F,) bins: (above the threshold, below fs/2), (F, 4) each.
+
+    The bin nearest a harmonic lies in its main lobe, so it alone decides (a cheap first look).
+    """
+    low = np.rint(f[:, None] * LOW_HARMONICS).astype(int)
+    inside = low <= plan.nbins - 3
+    lines = power[np.arange(power.shape[0])[:, None], clamp(low, 0, plan.nbins - 1)]
+    return lines > detect[:, None], inside
 
 
 def folding_missed(plan: Plan, spec, power, detect, fc, f_fine):

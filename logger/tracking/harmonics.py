@@ -13,7 +13,7 @@ import numpy as np
 
 from coilshift.logger.tracking.coarse import Coarse
 from coilshift.logger.tracking.estimators import grandke_hann
-from coilshift.logger.tracking.folding import aliased_frames, crowding, fold, line_at
+from coilshift.logger.tracking.folding import aliased_frames, crowding, fold, line_at, low_harmonic_lines
 from coilshift.logger.tracking.kernels import clamp, hann_kernel
 from coilshift.logger.tracking.plan import Plan
 from coilshift.logger.tracking.settings import CLOSE_BINS, FOLD_LOCATION_TOL, GRANDKE_VARIANCE_FACTOR
@@ -118,14 +118,8 @@ def _may_fold(plan: Plan, power, detect, fc):
     """(F,) bool: frames whose harmonics could fold: all but a tone below fs/6 with none of its
     harmonics 2..5 below fs/2 above the threshold (a waveform whose harmonics fold, a square with
     its 3rd, a sawtooth with its 2nd, a triangle with its 3rd at 1/9, shows one of them there)."""
-    low = np.rint(fc[:, None] * _LOW_HARMONICS).astype(int)
-    inside = low <= plan.nbins - 3
-    lines = power[np.arange(fc.shape[0])[:, None], clamp(low, 0, plan.nbins - 1)] > detect[:, None]
+    lines, inside = low_harmonic_lines(plan, power, detect, fc)
     return np.any(lines & inside, axis=1) | ~inside[:, 1]
-
-
-#: the harmonics that tell a pure tone from a waveform whose harmonics fold
-_LOW_HARMONICS = np.array([2.0, 3.0, 4.0, 5.0])[None, :]
 
 
 def _folded_checks(plan: Plan, coarse: Coarse, pos, hvalid, combine, folded, n_look):
