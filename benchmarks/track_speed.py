@@ -11,8 +11,9 @@
    warm-up (the record of ``stability_speed.py``). Goal: 1e6 points under 2 s, cost linear in
    the points.
 
-Tracking here uses every core the tracker uses (up to two threads; see
-``coilshift.logger.tracking.chunks``); the CPU column shows the total over all threads.
+``track`` analyses each block's frames on up to two threads (``FrameTracker(workers=...)``,
+``coilshift.logger.tracking.tracker.available_workers``); the CPU column shows the total over
+all threads, so it can exceed the wall time.
 
 Usage::
 

@@ -49,12 +49,12 @@ def run_tracker(source, settings, progress: ProgressFn | None = None) -> tuple[F
     Returns the raw frames (nominal-rate times and frequencies) and the tracker (for its
     ``frame_len``/``hop_len``). Raises InputError when the recording is shorter than one frame.
     """
-    from coilshift.logger.tracking.tracker import FrameTracker
+    from coilshift.logger.tracking.tracker import FrameTracker, available_workers
 
     fs = float(source.sample_rate_hz)
     name = source_name(source)
     try:
-        tracker = FrameTracker(fs, settings)
+        tracker = FrameTracker(fs, settings, workers=available_workers())
     except InputError as exc:  # e.g. a sample rate too low for the frame: the recording's fault
         raise InputError(f"{name}: {exc}") from None
     if source.n_frames < tracker.frame_len:
@@ -65,15 +65,18 @@ def run_tracker(source, settings, progress: ProgressFn | None = None) -> tuple[F
     parts: list[FrameTable] = []
     done = 0
     total_s = source.duration_s
-    for block in source.blocks(block_frames):
-        try:
-            parts.append(tracker.push(block))
-        except InputError as exc:  # NaN or infinite samples in a float recording
-            raise InputError(f"{name}: {exc} (in the block starting at {done / fs:.3f} s)") from None
-        done += len(block)
-        if progress is not None:
-            progress(done / fs, total_s)
-    parts.append(tracker.finish())
+    try:
+        for block in source.blocks(block_frames):
+            try:
+                parts.append(tracker.push(block))
+            except InputError as exc:  # NaN or infinite samples in a float recording
+                raise InputError(f"{name}: {exc} (in the block starting at {done / fs:.3f} s)") from None
+            done += len(block)
+            if progress is not None:
+                progress(done / fs, total_s)
+        parts.append(tracker.finish())
+    finally:
+        tracker.close()
     return FrameTable.concat(parts), tracker
 
 

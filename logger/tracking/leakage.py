@@ -110,11 +110,18 @@ def without_model(plan: Plan, s, g, wg_conj, f0_est, ah, target):
     the share of the subtracted frame mean that belongs to the modelled periodic part (put back).
     """
     n = plan.n
-    n_h = ah.shape[1]
+    # only the harmonic columns some frame of the chunk holds: an all-zero column adds exact
+    # zeros to every sum below, so leaving it out changes no frame's result, bit for bit
+    held = np.flatnonzero(np.logical_or.reduce(ah != 0, axis=0))
+    if held.size == 0:
+        held = np.zeros(1, dtype=np.intp)  # keep one (zero) column: the sums need one
+    if held.size < ah.shape[1]:
+        ah = ah[:, held]
+    n_h = held.size
     n_p = g.shape[1]
-    hf = f0_est[:, None] * plan.harm[None, :n_h]  # (F, H)
+    hf = f0_est[:, None] * plan.harm[None, held]  # (F, H)
     ah_c = np.conj(ah)
-    others = np.arange(n_h)[None, :] != target[:, None]
+    others = held[None, :] != target[:, None]
     cols = [g[:, j:j + 1] for j in range(n_p)]
     # every kernel value this step needs, in one call: at hf, hf + g, hf - g
     ker = dirichlet(np.concatenate([hf] + [hf + c for c in cols] + [hf - c for c in cols], axis=1), n)

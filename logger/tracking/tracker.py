@@ -23,6 +23,8 @@ NumPy/SciPy, no I/O.
 from __future__ import annotations
 
 import math
+import os
+from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
 import scipy.fft as sfft
@@ -62,9 +64,14 @@ class FrameTracker:
     ----------
     sample_rate_hz : float
     settings : TrackerSettings, optional
+    workers : threads that analyse the chunks of one block side by side (NumPy and the FFT
+        release the interpreter lock for most of a chunk's work). The frames come out the same,
+        bit for bit, for any number: a frame's result depends only on its own samples. Live
+        capture keeps 1 (one block is a few frames); replaying a file uses
+        :func:`available_workers`.
     """
 
-    def __init__(self, sample_rate_hz: float, settings: TrackerSettings | None = None):
+    def __init__(self, sample_rate_hz: float, settings: TrackerSettings | None = None, workers: int = 1):
         self.settings = settings if settings is not None else TrackerSettings()
         self.settings.check_rate(sample_rate_hz)
         self.sample_rate_hz = float(sample_rate_hz)
@@ -79,6 +86,8 @@ class FrameTracker:
         self._received = 0
         self._gap_pending = False
         self._clip_pending = False
+        self.workers = max(1, int(workers))
+        self._pool: ThreadPoolExecutor | None = None
 
     def push(self, block, gap_before: bool = False) -> FrameTable:
         """Add samples; return the frames this block completed.
@@ -132,13 +141,7 @@ class FrameTracker:
             hits = np.zeros(0, dtype=np.int64)
         starts_rel = np.arange(count) * hop
         clipped = np.searchsorted(hits, starts_rel) < np.searchsorted(hits, starts_rel + n)
-        tables = []
-        for i in range(0, count, CHUNK_FRAMES):
-            chunk = windows[i:i + CHUNK_FRAMES]
-            freq, amp, snr, flg = analyse_frames(self._plan, chunk, clipped[i:i + CHUNK_FRAMES])
-            starts = self._next + (np.arange(i, i + chunk.shape[0])) * hop
-            t_s = (starts + (n - 1) / 2) / self.sample_rate_hz
-            tables.append(FrameTable(t_s=t_s, freq_hz=freq, amp_dbfs=amp, snr_db=snr, flags=flg))
+        tables = self._analyse(windows, clipped)
         if self._gap_pending:
             tables[0].flags[0] |= fl.GAP
             self._gap_pending = False
@@ -147,6 +150,30 @@ class FrameTracker:
         self._buf = self._buf[drop:].copy()
         self._buf_start = self._next
         return FrameTable.concat(tables)
+
+    def _analyse(self, windows, clipped) -> list[FrameTable]:
+        """The frames of one block, in chunks of at most CHUNK_FRAMES (split evenly over the workers)."""
+        count, n, hop = windows.shape[0], self.frame_len, self.hop_len
+        size = min(CHUNK_FRAMES, -(-count // self.workers))
+        bounds = [(i, min(count, i + size)) for i in range(0, count, size)]
+
+        def one(bound):
+            i, j = bound
+            freq, amp, snr, flg = analyse_frames(self._plan, windows[i:j], clipped[i:j])
+            t_s = (self._next + np.arange(i, j) * hop + (n - 1) / 2) / self.sample_rate_hz
+            return FrameTable(t_s=t_s, freq_hz=freq, amp_dbfs=amp, snr_db=snr, flags=flg)
+
+        if self.workers == 1 or len(bounds) == 1:
+            return [one(b) for b in bounds]
+        if self._pool is None:
+            self._pool = ThreadPoolExecutor(self.workers, thread_name_prefix="coilshift-track")
+        return list(self._pool.map(one, bounds))
+
+    def close(self) -> None:
+        """Stop the worker threads (a later push starts them again)."""
+        if self._pool is not None:
+            self._pool.shutdown(wait=True)
+            self._pool = None
 
     def finish(self) -> FrameTable:
         """End of input: drop the trailing partial frame and reset; returns the frames still due.
@@ -158,7 +185,18 @@ class FrameTracker:
         self._buf = np.zeros(0)
         self._buf_start = self._next = self._received = 0
         self._gap_pending = False
+        self.close()
         return FrameTable.empty()
+
+
+def available_workers(limit: int = 2) -> int:
+    """Threads worth giving a file replay: the cores this process may run on, at most ``limit``
+    (beyond two the per-chunk Python work, which holds the interpreter lock, dominates)."""
+    try:
+        cores = len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):  # not Linux
+        cores = os.cpu_count() or 1
+    return max(1, min(limit, cores))
 
 
 def track_array(x, sample_rate_hz: float, settings: TrackerSettings | None = None) -> FrameTable:

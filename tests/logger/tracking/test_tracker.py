@@ -310,3 +310,34 @@ def test_bad_block_raises_input_error():
         tracker.push(np.zeros((10, 2)))
     with pytest.raises(InputError):
         tracker.push(np.array([0.0, np.nan]))
+
+
+def test_worker_threads_give_the_same_frames_bit_for_bit():
+    # a frame's result depends only on its own samples, so splitting a block's frames over two
+    # threads (in other chunk sizes than one thread uses) must change nothing, gaps and clipping
+    # included; the harmonics of the pulse exercise the leakage model's column selection
+    fs = FS
+    t = np.arange(int(7.0 * fs)) / fs
+    x = 0.3 * np.cos(2 * np.pi * 1234.5 * t) + 0.02 * np.cos(2 * np.pi * 50 * t) + 0.3 * (np.sin(2 * np.pi * 300.0 * t) > 0.4)
+    x += 0.01 * np.random.default_rng(3).standard_normal(t.size)
+    x[int(2.0 * fs):int(2.0 * fs) + 50] = 1.0
+    cut = int(4.1 * fs)
+    one = FrameTracker(fs)
+    two = FrameTracker(fs, workers=2)
+    a = [one.push(x[:cut]), one.push(x[cut:], gap_before=True), one.finish()]
+    b = [two.push(x[:cut])]
+    assert two._pool is not None  # the first block had frames for both threads
+    b += [two.push(x[cut:], gap_before=True), two.finish()]
+    assert two._pool is None  # finish() stops the threads
+    single, threaded = type(a[0]).concat(a), type(b[0]).concat(b)
+    assert len(single) > 300 and np.any(single.flags & fl.GAP) and np.any(single.flags & fl.CLIPPED)
+    for name in ("t_s", "freq_hz", "amp_dbfs", "snr_db", "flags"):
+        np.testing.assert_array_equal(getattr(threaded, name), getattr(single, name), err_msg=name)
+
+
+def test_worker_count_is_at_least_one():
+    from coilshift.logger.tracking.tracker import available_workers
+
+    assert FrameTracker(FS, workers=0).workers == 1
+    assert 1 <= available_workers() <= 2
+    assert available_workers(limit=1) == 1
