@@ -25,7 +25,7 @@ from coilshift.logger.runfolder.markers import BASELINE, Marker, markers_to_csv
 
 from coilshift.sim.oscillator import PhaseNoise, PulseSynth, Schedule, apparent_freq_hz, drift_hz
 from coilshift.sim.response import build_responses
-from coilshift.sim.script import Script
+from coilshift.sim.script import Script, coil_inductance_uh
 
 TRUTH_FORMAT = "coilshift-sim-truth"
 TRUTH_VERSION = 1
@@ -191,12 +191,12 @@ def truth_for(p: Plan) -> dict:
     }
 
 
-def _inductance_uh(s: Script):
+def _inductance_uh(s: Script) -> float | None:
+    """The simulator's own inductance of the script's coil (uH; the L behind the tone's frequency
+    and the targets' responses), None when the script gives ``freq_hz`` instead of a coil."""
     if s.oscillator.coil is None:
         return None
-    from coilshift.sim.script import coil_report
-
-    return float(coil_report(s.oscillator.coil, s.name).inductance_uh)
+    return coil_inductance_uh(s.oscillator.coil, f"{s.name}: oscillator.coil")
 
 
 def write_recording(p: Plan, path: str | os.PathLike, block_frames: int = BLOCK_FRAMES) -> None:

@@ -6,11 +6,14 @@ Two kinds:
   loop of radius R. The loop's field at the target falls as (a^2/(a^2+z^2))^(3/2) (Biot-Savart on
   the axis) and, by reciprocity, the coupling back into the coil carries the same factor again, so
   dL and df/f = -dL/(2L) fall as its square (Wait 1951 for the sphere's dipole moment);
-* physical: the models' :func:`coilshift.analysis.models.target.predicted_shift_hz` for a material, shape
-  and size in front of a designed coil (a point-like sphere on the axis of the finite winding);
-  with ``"finite_size": true`` the sphere's finite size is added by the truth model of
-  :mod:`coilshift.sim.fields` (the field's square averaged over the sphere's volume, Biot-Savart
-  off the axis), which the analysis does not share.
+* physical: a sphere of a material and size on the axis of the script's coil, built by the
+  simulator alone (no import from the analysis side, so that the analysis' predictions are checked
+  against it): the sphere's exact polarisability (:mod:`.sphere`, Wait 1951 with spherical
+  Bessel functions), the winding's Biot-Savart field (:mod:`.fields`; with ``"finite_size": true``
+  the field's square averaged over the sphere's volume), the winding's inductance by a quadrature
+  of Maxwell's mutual inductance over its section (:mod:`.benchcoil`, :mod:`.inductance`; the
+  same L that sets the tone's frequency), materials from :mod:`.materials` or the script's
+  ``sigma`` / ``mu_r``.
 """
 
 from __future__ import annotations
@@ -23,6 +26,11 @@ import numpy as np
 from scipy.optimize import brentq
 
 from coilshift.logger.errors import InputError
+from coilshift.sim.benchcoil import bench_coil
+from coilshift.sim.fields import Target, mean_field_sq
+from coilshift.sim.inductance import MU0_H_PER_M
+from coilshift.sim.materials import BENCH_MATERIALS, bench_material
+from coilshift.sim.sphere import polarisability_m3
 
 #: classes as the analysis names them: frequency falls / rises / no clear response
 FERROUS, NON_FERROUS, INDETERMINATE = "ferrous", "non-ferrous", "indeterminate"
@@ -94,66 +102,82 @@ def build_responses(script) -> dict[str, Response]:
 
 
 def _physical(name: str, spec: dict, osc, where: str) -> Response:
+    """The bench's true response of a sphere on the coil axis, from the simulator's own models.
+
+    dL = mu0 alpha h^2 (reciprocity: the flux the dipole m = alpha h I sends through the coil is
+    mu0 m h per ampere), with alpha the sphere's polarisability (:mod:`.sphere`), h the winding's
+    field per ampere at the target (:mod:`.fields`; with ``finite_size`` the mean of |h|^2 over the
+    sphere) and L the winding's own inductance (:mod:`.benchcoil`, by :mod:`.inductance`); df =
+    -f Re(dL) / (2 L) at the script's oscillator frequency f.
+    """
     w = f"{where}: targets.{name}"
-    try:
-        from coilshift.analysis.models import coil as coilmod
-        from coilshift.analysis.models import target as targetmod
-    except ImportError:
-        raise InputError(f"{w}: target models are not available in this installation; "
-                         "use peak_shift_hz and coil_radius_mm") from None
-    report = coilmod.analyse_coil(coilmod.design_from_dict(osc.coil, f"{where}: oscillator.coil"))
-    try:
-        tspec = _target_spec(targetmod, spec, w)
-    except InputError as exc:
-        # the models name the spec text; say which script entry it came from
-        msg = str(exc)
-        raise InputError(msg if msg.startswith(w) else f"{w}: {msg}") from None
+    body = _sphere_spec(spec, w)
+    coil = bench_coil(osc.coil, f"{where}: oscillator.coil")
+    winding, l_h = coil.winding, coil.inductance_h  # the L of the tone's frequency too
     freq = float(osc.freq_hz)
-    finite = _finite_size_factor(osc.coil, tspec.diameter_mm) if spec.get("finite_size") else None
+    alpha = polarisability_m3(body["radius_m"], body["sigma_s_per_m"], body["mu_r"], freq)
+    sphere = Target("sphere", body["radius_m"]) if body["finite_size"] else None
+    scale = -freq * MU0_H_PER_M * alpha.real / (2.0 * l_h)   # Hz per (A/m per A)^2
 
-    def shift(d, report=report, tspec=tspec, freq=freq):
+    def shift(d):
         d = np.asarray(d, float)
-        point = np.asarray(targetmod.predicted_shift_hz(report, tspec, d, freq), float)
-        return point if finite is None else point * finite(d)
+        if sphere is None:  # a point target: h on the axis
+            return scale * np.asarray(winding.field_per_amp(0.0, d * 1e-3)[1], float) ** 2
+        return scale * np.asarray(mean_field_sq(winding, sphere, d * 1e-3), float).reshape(d.shape)
 
-    try:
-        probe = shift(np.array([0.0, 100.0]))
-    except (TypeError, ValueError) as exc:
-        raise InputError(f"{w}: {exc}") from None
-    if probe.shape != (2,) or not np.all(np.isfinite(probe)):
+    probe = shift(np.array([0.0, 100.0]))
+    if not np.all(np.isfinite(probe)):
         raise InputError(f"{w}: the target model gave no finite shift for this target")
-    return Response(name, shift, {"model": "coilshift.analysis.models.target", "spec": spec,
-                                  "target": tspec.to_dict(),
-                                  "inductance_uh": float(report.inductance_uh), "freq_hz": freq})
+    return Response(name, shift, {"model": "coilshift.sim (sphere polarisability, Biot-Savart field, "
+                                           "own inductance)", "spec": spec,
+                                  "target": {k: body[k] for k in ("name", "diameter_mm", "sigma_s_per_m", "mu_r")},
+                                  "kappa": [alpha.real / (4.0 * math.pi * body["radius_m"] ** 3),
+                                            alpha.imag / (4.0 * math.pi * body["radius_m"] ** 3)],
+                                  "inductance_uh": l_h * 1e6, "freq_hz": freq})
 
 
-def _finite_size_factor(coil: dict, diameter_mm: float) -> Callable[[np.ndarray], np.ndarray]:
-    """d -> <|h|^2>_sphere(d) / h_z(0, d)^2 from the truth model (sim.fields) for the script's coil."""
-    from coilshift.sim.fields import Target, Winding, mean_field_sq
-
-    w = Winding.from_design_mm(float(coil["turns"]), float(coil["inner_diameter_mm"]), float(coil["length_mm"]),
-                               float(coil.get("depth_mm", 0.0) or 0.0))
-    sphere = Target("sphere", 0.5e-3 * float(diameter_mm))
-
-    def factor(d_mm: np.ndarray) -> np.ndarray:
-        z = np.atleast_1d(np.asarray(d_mm, float)) * 1e-3
-        point = np.array([float(w.field_per_amp(0.0, zi)[1]) ** 2 for zi in z])
-        out = np.asarray(mean_field_sq(w, sphere, z), float) / point
-        return out.reshape(np.shape(d_mm))
-
-    return factor
+#: the script keys of a physical target (``finite_size`` averages |h|^2 over the sphere)
+_SPEC_KEYS = ("material", "diameter_mm", "sigma", "mu_r", "finite_size")
 
 
-def _target_spec(targetmod, spec: dict, where: str):
-    """The models' TargetSpec from the script's keys: material, diameter_mm, optional sigma and mu_r
-    (``finite_size`` is the simulator's own switch)."""
-    extra = sorted(set(spec) - {"material", "diameter_mm", "sigma", "mu_r", "finite_size"})
+def _sphere_spec(spec: dict, where: str) -> dict:
+    """Radius, sigma, mu_r and the finite-size switch from a script's physical target, checked."""
+    extra = sorted(set(spec) - set(_SPEC_KEYS))
     if extra:
-        raise InputError(f"{where}: unknown key '{extra[0]}' (allowed: material, diameter_mm, sigma, mu_r, "
-                         "finite_size)")
+        raise InputError(f"{where}: unknown key '{extra[0]}' (allowed: {', '.join(_SPEC_KEYS)})")
     if "finite_size" in spec and not isinstance(spec["finite_size"], bool):
         raise InputError(f"{where}: finite_size must be true or false")
     if not isinstance(spec.get("material"), str):
         raise InputError(f"{where}: material must be a name, e.g. \"aluminium\"")
-    parts = [f"{k}={spec[k]}" for k in ("diameter_mm", "sigma", "mu_r") if k in spec]
-    return targetmod.parse_target_spec(f"{spec['material']}:{','.join(parts)}")
+    head = spec["material"].strip()
+    material = bench_material(head) if head else None
+    if head and material is None:
+        raise InputError(f"{where}: unknown material {head!r} (known: {', '.join(BENCH_MATERIALS)})")
+    if "diameter_mm" not in spec:
+        raise InputError(f"{where}: diameter_mm is required, e.g. \"diameter_mm\": 20")
+    if material is None and not {"sigma", "mu_r"} <= set(spec):
+        raise InputError(f"{where}: give a material name or both sigma and mu_r")
+    d = _number(spec, "diameter_mm", where, None, 0.0, MAX_DIAMETER_MM, low_open=True)
+    sigma = _number(spec, "sigma", where, material and material.sigma_s_per_m, 0.0, 1e9)
+    mu_r = _number(spec, "mu_r", where, material and material.mu_r, 0.0, 1e6, low_open=True)
+    return {"name": material.name if material else "custom", "diameter_mm": d, "radius_m": 0.5e-3 * d,
+            "sigma_s_per_m": sigma, "mu_r": mu_r, "finite_size": bool(spec.get("finite_size", False))}
+
+
+#: the largest sphere modelled, mm (100 m; no bench holds a larger one)
+MAX_DIAMETER_MM = 1e5
+
+
+def _number(spec: dict, key: str, where: str, default, lo: float, hi: float, low_open: bool = False) -> float:
+    """spec[key] (or the default) as a finite number in [lo, hi] ((lo, hi] with ``low_open``)."""
+    v = spec.get(key, default)
+    try:
+        if isinstance(v, bool):
+            raise TypeError
+        x = float(v)
+    except (TypeError, ValueError):
+        raise InputError(f"{where}: {key} must be a number, got {v!r}") from None
+    if not (math.isfinite(x) and (x > lo if low_open else x >= lo) and x <= hi):
+        rng = f"above {lo:g}" if low_open else f"at least {lo:g}"
+        raise InputError(f"{where}: {key} must be {rng} and at most {hi:g}, got {v!r}")
+    return x

@@ -31,10 +31,13 @@ coil), ``targets`` (when the session uses any) and ``session``. Units are in the
 [15, 30], "hold_s": 3, "baseline_s": 2}}``.
 
 A target is either parametric (``peak_shift_hz`` A and ``coil_radius_mm`` R: the on-axis dipole
-response ``A (R^2/(R^2+d^2))^3``) or physical (``material``, ``shape`` and size keys, handed to
-:mod:`coilshift.analysis.models.target`; needs the oscillator's ``coil``). The oscillator frequency is
-either ``freq_hz`` or set by a ``coil`` (the fields of :class:`coilshift.analysis.models.coil.CoilDesign`,
-with ``cap_nf`` the tuning capacitor) through f = 1/(2 pi sqrt(L C)).
+response ``A (R^2/(R^2+d^2))^3``) or physical (a sphere: ``material``, ``diameter_mm``, optional
+``sigma``, ``mu_r`` and ``finite_size``; needs the oscillator's ``coil``), whose true response the
+simulator computes with its own models (:mod:`coilshift.sim.response`). The oscillator frequency is
+either ``freq_hz`` or set by a ``coil`` (the keys of a coil file, with ``cap_nf`` the tuning
+capacitor) through f = 1/(2 pi sqrt(L C)), L the simulator's own inductance of the winding and C
+``cap_nf`` without the coil's self-capacitance (:mod:`coilshift.sim.benchcoil`). Nothing here or
+there imports the analysis side, so the analysis is checked against this truth, not fed by it.
 """
 
 from __future__ import annotations
@@ -48,6 +51,7 @@ from typing import Any
 from coilshift.logger.errors import InputError
 from coilshift.logger.runfolder.markers import BASELINE
 from coilshift.logger.textfile import read_json
+from coilshift.sim.benchcoil import bench_coil
 
 ENCODINGS = ("wav", "flac")
 BITS = (16, 24)
@@ -244,24 +248,20 @@ def _oscillator(c: _Checker, d: dict) -> Oscillator:
 def coil_frequency_hz(coil: dict, where: str) -> float:
     """Operating frequency of an LC oscillator tuned by ``coil['cap_nf']``: 1/(2 pi sqrt(L C)).
 
-    The inductance and frequency come from :func:`coilshift.analysis.models.coil.analyse_coil`
-    (Wheeler's formulas; Thomson's formula for the LC frequency).
+    L is the simulator's own inductance of the winding (:func:`coil_inductance_uh`, the same value
+    the targets' responses and ``truth.json`` use); C is ``cap_nf`` alone, the coil's
+    self-capacitance is not included (:mod:`coilshift.sim.benchcoil`).
     """
-    report = coil_report(coil, where)
-    f = report.lc_freq_hz
+    f = bench_coil(coil, where).lc_freq_hz
     if f is None or not math.isfinite(f):
         raise InputError(f"{where}: needs 'cap_nf' (the tuning capacitor, nF) to set the frequency")
     return float(f)
 
 
-def coil_report(coil: dict, where: str):
-    """The models' :class:`~coilshift.analysis.models.coil.CoilReport` for a script's coil dict."""
-    try:
-        from coilshift.analysis.models import coil as coilmod
-    except ImportError:
-        raise InputError(f"{where}: coil models are not available in this installation; "
-                         "give oscillator.freq_hz instead") from None
-    return coilmod.analyse_coil(coilmod.design_from_dict(coil, where))
+def coil_inductance_uh(coil: dict, where: str) -> float:
+    """The simulator's inductance (uH) of a script's coil: uniform current density over the
+    winding's section, by quadrature of Maxwell's mutual inductance (:mod:`coilshift.sim.inductance`)."""
+    return bench_coil(coil, where).inductance_h * 1e6
 
 
 def _targets(c: _Checker, d: dict) -> dict[str, TargetDef]:

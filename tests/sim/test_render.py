@@ -167,11 +167,13 @@ def test_clipping_and_hum():
 
 
 def test_coil_and_physical_targets_drive_the_tone():
-    # The oscillator runs at the coil's LC frequency and a physical target shifts it by the models'
-    # prediction (coilshift.analysis.models.coil / .target, tested against Wheeler 1928, Grover's tables
-    # and Wait 1951 there); here the zero-crossing count of the rendered tone must show both.
+    # The oscillator runs at the coil's LC frequency and a physical target shifts it by the
+    # simulator's own truth (coilshift.sim.response; checked against the analysis' prediction and
+    # published values in tests/sim/test_response.py and test_truth.py); here the zero-crossing
+    # count of the rendered tone must show both.
     from coilshift.analysis.models.coil import analyse_coil, design_from_dict
     from coilshift.analysis.models.target import parse_target_spec, predicted_shift_hz
+    from coilshift.sim.response import build_responses
 
     coil = {"turns": 32, "inner_diameter_mm": 200, "length_mm": 7, "depth_mm": 7, "awg": 25, "cap_nf": 270}
     d = script_dict(oscillator={"coil": coil}, recording={"max_harmonic": 1},
@@ -180,11 +182,24 @@ def test_coil_and_physical_targets_drive_the_tone():
                                                        {"target": "alu", "distance_mm": 20, "hold_s": 1.0}]})
     d["oscillator"].pop("freq_hz")
     s = parse_script(d, "t")
+    p = plan(s)
+    truth = truth_for(p)
+    l_uh = truth["oscillator"]["inductance_uh"]
+    # one L for the tone, the target's response and truth.json
+    assert p.responses["alu"].params["inductance_uh"] == l_uh
+    # Thomson's formula f = 1/(2 pi sqrt(L C)) written here, with C the 270 nF capacitor alone
+    f0 = 1.0 / (2.0 * np.pi * np.sqrt(l_uh * 1e-6 * 270e-9))
+    assert s.oscillator.freq_hz == pytest.approx(f0, rel=1e-12)
     report = analyse_coil(design_from_dict(coil))
-    f0 = report.lc_freq_hz
-    shift = float(predicted_shift_hz(report, parse_target_spec("aluminium:diameter_mm=25"), [20.0], f0)[0])
+    # the analysis' L (thin-ring formula, 1 % by docs/models.md) moves its f by at most 1/2 %
+    assert f0 == pytest.approx(report.lc_freq_hz, rel=0.005)
+    shift = float(build_responses(s)["alu"].shift_hz(np.array([20.0]))[0])
+    # the analysis' prediction agrees within its thin-ring inductance formula's stated 1 %
+    model = float(predicted_shift_hz(report, parse_target_spec("aluminium:diameter_mm=25"), [20.0],
+                                     report.lc_freq_hz)[0])
+    assert shift == pytest.approx(model, rel=0.01)
     assert shift > 1.0  # a conductor raises the frequency by a measurable amount here
     x = render_array(s)
-    m = markers_for(plan(s))
+    m = markers_for(p)
     assert zero_crossing_freq_hz(_hold(x, m[0]), FS) == pytest.approx(f0, abs=1e-3)
     assert zero_crossing_freq_hz(_hold(x, m[1]), FS) == pytest.approx(f0 + shift, abs=1e-3)

@@ -7,13 +7,14 @@ import math
 import numpy as np
 import pytest
 from scipy import integrate
-from scipy.special import spherical_in
+from scipy.special import spherical_in, spherical_jn
 
 from coilshift.analysis.models.coil import CoilDesign, analyse_coil
 from coilshift.analysis.models.inductance import MU0_H_PER_M
 from coilshift.analysis.models.materials import MATERIALS
 from coilshift.analysis.models.target import (TargetSpec, closed_form_amplitude_hz, closed_form_range_mm,
-                                       coil_axial_field_per_amp, make_target, parse_target_spec,
+                                       coil_axial_field_per_amp, induction_number, make_target,
+                                       parse_target_spec,
                                        predicted_range_mm, predicted_response, predicted_shift_hz,
                                        sphere_response)
 from coilshift.logger.errors import InputError
@@ -159,16 +160,71 @@ def test_reciprocity_and_the_sixth_power_law():
     assert far[1] / far[0] == pytest.approx(1 / 64, rel=1e-3)
 
 
-def test_prediction_is_built_from_the_pieces():
-    coil = analyse_coil(CoilDesign(200, 50, 10, depth_mm=5, awg=26, cap_nf=100))
-    st = parse_target_spec("steel:diameter_mm=10")
-    pred = predicted_response(coil, st, [30.0])
-    h = coil_axial_field_per_amp(coil, 30.0)
-    k = sphere_response(st, coil.lc_freq_hz)
-    dl = 4 * math.pi * MU0_H_PER_M * st.radius_m ** 3 * k * h * h
-    assert pred.shift_hz[0] == pytest.approx(-coil.lc_freq_hz * dl.real / (2 * coil.inductance_uh * 1e-6))
-    assert pred.delta_r_ohm[0] == pytest.approx(-2 * math.pi * coil.lc_freq_hz * dl.imag)
-    assert pred.delta_r_ohm[0] > 0   # the target adds loss
+def _kappa_spherical_jn(t: TargetSpec, f):
+    # Independent of the code (Wait 1951; Smythe, Static and Dynamic Electricity, ch. 10): inside,
+    # H = curl curl (r j_1(k r) cos theta), k^2 = -i w mu sigma (e^{iwt}); matching B_r and H_theta
+    # at r = R to the uniform field plus a dipole gives kappa = (2 mu_r P - Q) / (2 (mu_r P + Q)),
+    # P = j_1(kR), Q = d(r j_1(k r))/dr at R = P + kR j_1'(kR); scipy.special.spherical_jn.
+    x = np.sqrt(-1j * 2 * np.pi * f * t.mu_r * MU0_H_PER_M * t.conductivity_s_per_m) * t.radius_m
+    p = spherical_jn(1, x)
+    q = p + x * spherical_jn(1, x, derivative=True)
+    return (2 * t.mu_r * p - q) / (2 * (t.mu_r * p + q))
+
+
+@pytest.mark.parametrize("spec", ["copper:diameter_mm=10", "steel:diameter_mm=10", "ferrite:diameter_mm=20",
+                                  "sigma=1e7,mu_r=5,diameter_mm=30"])
+def test_whole_prediction_of_a_thin_loop_from_published_pieces(spec):
+    # A loop of mean radius a = 50 mm, 10 turns (1 um long; the rest is O(1 um^2)): h = N a^2 / (2 (a^2 + z^2)^(3/2)) per
+    # ampere on the axis (Biot-Savart, REFERENCES 8 [pub]); dL = mu0 4 pi R^3 kappa h^2
+    # (reciprocity, REFERENCES 8 [derived]) with kappa from the Bessel functions above;
+    # df = -f Re(dL) / (2L) and dR = -w Im(dL). L is the coil's own current-sheet value (checked
+    # against Grover's Table 36 in test_coil.py).
+    coil = analyse_coil(CoilDesign(10, 100, 0.001, cap_nf=100))
+    t = parse_target_spec(spec)
+    f = coil.lc_freq_hz
+    z = np.array([0.0, 20.0, 50.0, 120.0])
+    a, zc = 0.05, (z + 0.0005) * 1e-3   # the 1 um sheet's turns sit half a micrometre behind the face
+    h = 10 * a * a / (2 * (a * a + zc ** 2) ** 1.5)
+    kappa = _kappa_spherical_jn(t, f)
+    dl = MU0_H_PER_M * 4 * math.pi * t.radius_m ** 3 * kappa * h * h
+    pred = predicted_response(coil, t, z)
+    assert pred.shift_hz == pytest.approx(-f * dl.real / (2 * coil.inductance_h), rel=1e-6)
+    # the added loss: sign from the lag of a lossy sphere (Im kappa < 0 with e^{iwt}), size w |Im dL|
+    assert np.all(pred.delta_r_ohm > 0)
+    assert pred.delta_r_ohm == pytest.approx(-2 * math.pi * f * dl.imag, rel=1e-6)
+    assert pred.delta_inv_q == pytest.approx(pred.delta_r_ohm / (2 * math.pi * f * coil.inductance_h), rel=1e-12)
+
+
+def test_sphere_response_at_a_stated_induction_number():
+    # |a| = R sqrt(w mu sigma) = 2 for a non-magnetic sphere and 3 for mu_r = 50: the code's kappa
+    # against the spherical_jn boundary-value solution computed here
+    for mu_r, a_abs in ((1.0, 2.0), (50.0, 3.0)):
+        r = 0.01
+        sigma = a_abs ** 2 / (2 * math.pi * 1e3 * mu_r * MU0_H_PER_M * r * r)
+        t = make_target("x", 2e3 * r, sigma, mu_r)
+        assert float(induction_number(t, 1e3)) == pytest.approx(a_abs, rel=1e-12)
+        assert sphere_response(t, 1e3) == pytest.approx(complex(_kappa_spherical_jn(t, 1e3)), rel=1e-10)
+
+
+def test_whole_shift_against_the_simulators_truth():
+    # The 200-turn 50 mm multilayer with a 10 mm steel ball against coilshift.sim's independent truth
+    # (its own inductance quadrature, Biot-Savart field and sphere; tests/sim/test_truth.py). The
+    # analysis uses its uniform-density filament sum for this coil: within 1e-4 by its cell grid.
+    from coilshift.sim.response import build_responses
+    from coilshift.sim.script import parse_script
+
+    design = {"turns": 200, "inner_diameter_mm": 50, "length_mm": 10, "depth_mm": 5, "awg": 26, "cap_nf": 100}
+    coil = analyse_coil(CoilDesign(**design))
+    script = parse_script({"oscillator": {"coil": design},
+                           "targets": {"st": {"material": "mild_steel", "diameter_mm": 10},
+                                       "cu": {"material": "copper", "diameter_mm": 20}},
+                           "session": {"steps": [{"target": "baseline", "hold_s": 1}]}}, "t")
+    truth = build_responses(script)
+    z = np.array([0.0, 30.0, 100.0])
+    for key, spec in (("st", "steel:diameter_mm=10"), ("cu", "copper:diameter_mm=20")):
+        want = truth[key].shift_hz(z)
+        assert predicted_shift_hz(coil, parse_target_spec(spec), z, script.oscillator.freq_hz) == \
+            pytest.approx(want, rel=1e-4)
 
 
 def test_range_numeric_and_closed_form():
