@@ -28,24 +28,35 @@ def analysis_kwargs(args) -> dict:
 
 
 def report_results(results, args) -> None:
-    """Print the summary (text or JSON) and write the output folder when asked
+    """Write the output folder when asked, then print the summary (text or JSON)
     (``args.out``, ``args.force``, ``args.json``)."""
+    write_results(results, args)
+    print_results(results, args)
+
+
+def write_results(results, args, progress=None) -> None:
+    """Write the output folder ``args.out`` (built aside, swapped in whole) when asked;
+    ``progress`` (a stage line) hears what is being written."""
+    from coilshift.analysis.report.calibration_outputs import write_outputs
+    from coilshift.cli.common import note_done
+    from coilshift.logger.runfolder.outputs import building_output_dir
+
+    if args.out:
+        with building_output_dir(args.out, args.force) as build:  # swapped in whole, or not at all
+            write_outputs(results, build, progress=progress)
+        note_done(f"the outputs were written to {args.out}")
+
+
+def print_results(results, args) -> None:
+    """Print the summary of the analysed runs: one JSON object with ``args.json``, else text."""
     import sys
+    from pathlib import Path
 
     from coilshift.analysis.calibration.compare import compare_runs, unique_names
     from coilshift.analysis.calibration.summary import result_summary
-    from coilshift.analysis.report.calibration_outputs import summary_lines, write_outputs
-    from pathlib import Path
+    from coilshift.analysis.report.calibration_outputs import summary_lines
+    from coilshift.cli.common import print_json
 
-    from coilshift.cli.common import note_done, print_json
-    from coilshift.logger.runfolder.outputs import building_output_dir
-
-    out = None
-    if args.out:
-        with building_output_dir(args.out, args.force) as build:  # swapped in whole, or not at all
-            write_outputs(results, build)
-        out = Path(args.out)
-        note_done(f"the outputs were written to {out}")
     if args.json:
         if len(results) == 1:
             print_json(result_summary(results[0]))
@@ -64,5 +75,5 @@ def report_results(results, args) -> None:
             cells = ", ".join(f"{n}: " + ("-" if n not in row.range_mm else "undefined" if row.range_mm[n] is None
                                           else f"{row.range_mm[n]:.1f}") for n in names)
             print(f"  {row.target}: {cells}")
-    if out is not None:
-        print(f"report: {out / 'report.html'}", file=sys.stderr if args.json else sys.stdout)
+    if args.out:
+        print(f"report: {Path(args.out) / 'report.html'}", file=sys.stderr if args.json else sys.stdout)

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from coilshift.cli.options import (add_analysis_options, add_force_option, add_json_option, add_markers_option,
-                                   add_old_spellings, add_out_option)
+                                   add_old_spellings, add_out_option, add_quiet_option)
 
 ORDER = 40
 
@@ -19,18 +19,29 @@ def register(subparsers) -> None:
     add_json_option(p, "print one JSON object instead of the text summary")
     add_out_option(p, "write tables, plots and report.html to this new folder", metavar="OUT")
     add_force_option(p, "allow OUT to be a non-empty folder")
+    add_quiet_option(p, "no progress line on stderr")
     add_old_spellings(p, "analyze")
     p.set_defaults(func=run)
 
 
 def run(args) -> int:
+    from pathlib import Path
+
     from coilshift.analysis.calibration.run import analyse_run
-    from coilshift.cli.analysis_args import analysis_kwargs, report_results
+    from coilshift.cli.analysis_args import analysis_kwargs, print_results, write_results
     from coilshift.logger.errors import InputError
+    from coilshift.logger.progress import make_stages
 
     if args.markers and len(args.runs) > 1:
         raise InputError(f"{args.markers}: --markers applies to one run; give each run its own markers.csv")
     kwargs = analysis_kwargs(args)
-    results = [analyse_run(path, args.markers, **kwargs) for path in args.runs]
-    report_results(results, args)
+    n = len(args.runs)
+    results = []
+    with make_stages("analyze", quiet=args.quiet) as stage:  # stderr, on a terminal only
+        for i, path in enumerate(args.runs, 1):
+            where = f"run {i} of {n} ({Path(path).name})" if n > 1 else Path(path).name
+            results.append(analyse_run(path, args.markers, progress=lambda text, w=where: stage(f"{w}: {text}"),
+                                       **kwargs))
+        write_results(results, args, progress=stage)
+    print_results(results, args)
     return 0

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from coilshift.cli.options import add_force_option, add_json_option, add_out_option
+from coilshift.cli.options import add_force_option, add_json_option, add_out_option, add_quiet_option
 
 ORDER = 5
 DEFAULT_DIR = "coilshift-demo"
@@ -20,6 +20,7 @@ def register(subparsers) -> None:
                    default=None, metavar="DIR")
     add_force_option(p, "allow DIR to be a non-empty folder")
     add_json_option(p, "print the summary as one JSON object")
+    add_quiet_option(p, "no progress on stderr")
     p.set_defaults(func=run)
 
 
@@ -36,7 +37,7 @@ def _free_dir():
     return base  # every name taken: new_output_dir refuses with a clear message
 
 
-def _build(out, force: bool, say, run_demo) -> dict:
+def _build(out, force: bool, say, progress, run_demo) -> dict:
     """Run the demo in a folder built aside and swapped in whole (an interrupted demo leaves
     ``out`` as it was). The demo runs inside the build folder, so the paths its files record
     (a run's recording, a result's run folder) are relative to the demo folder and stay right
@@ -50,7 +51,7 @@ def _build(out, force: bool, say, run_demo) -> dict:
     with building_output_dir(out, force) as build:
         os.chdir(build)
         try:
-            summary = run_demo(".", True, say)
+            summary = run_demo(".", True, say, progress)
         finally:
             os.chdir(here)
     for key in ("report", "calibration_report"):
@@ -62,13 +63,20 @@ def run(args) -> int:
     import sys
 
     from coilshift.cli.common import note_done, print_json
+    from coilshift.logger.progress import make_stages
     from coilshift.sim.demo import CAUTION, run_demo, summary_table
     from coilshift.sim.demo_report import drift_text
 
     out = args.out if args.out is not None else _free_dir()
-    quiet = args.json
-    say = (lambda s: None) if quiet else (lambda s: print(s, file=sys.stderr, flush=True))
-    summary = _build(out, args.force, say, run_demo)
+    quiet = args.json or args.quiet
+    with make_stages("demo", quiet=quiet) as stage:
+        # a terminal gets one line redrawn in place, with the steps inside each stage; a pipe or a
+        # log file gets one plain line as each stage begins; --json and --quiet get nothing
+        if stage.enabled:
+            say, progress = stage, stage
+        else:
+            say, progress = (lambda s: None) if quiet else (lambda s: print(s, file=sys.stderr, flush=True)), None
+        summary = _build(out, args.force, say, progress, run_demo)
     note_done(f"the demo was written to {out}")
     if args.json:
         print_json(summary)

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 
 from coilshift.cli.options import (DRIFT_HZ_PER_MIN, FRACTION, FREQ_HZ, Bounded, add_force_option, add_json_option,
-                                   add_old_spellings, add_out_option)
+                                   add_old_spellings, add_out_option, add_quiet_option)
 
 ORDER = 60
 
@@ -46,6 +46,7 @@ def register(subparsers) -> None:
                       help="compute the deviations from this time of the log on (default: the settled start)")
     part.add_argument("--whole-log", action="store_true",
                       help="compute the deviations on the whole log, warm-up included")
+    add_quiet_option(p, "no progress line on stderr")
     add_old_spellings(p, "stability")
     p.set_defaults(func=run)
 
@@ -54,14 +55,12 @@ def run(args: argparse.Namespace) -> int:
     import math
     import sys
 
-    from coilshift.logger.runfolder.reader import read_log
     from coilshift.analysis.report.stability_text import table_text
-    from coilshift.analysis.stability.analyse import analyse_stability
-    from coilshift.analysis.stability.tempco import read_temperature_csv
-    from coilshift.cli.options import FRAME_MS, option_for
+    from coilshift.cli.options import option_for
     from coilshift.cli.common import print_json
     from coilshift.logger.runfolder.outputs import building_output_dir
     from coilshift.logger.errors import InputError
+    from coilshift.logger.progress import make_stages
 
     if not 0 < args.confidence < 1:
         raise InputError(f"--confidence: must lie between 0 and 1, got {args.confidence}")
@@ -69,6 +68,36 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(f"--settled-hz-per-min: must be a positive number, got {args.settled_hz_per_min}")
     if args.nominal_hz is not None and not (args.nominal_hz > 0 and math.isfinite(args.nominal_hz)):
         raise InputError(f"--nominal-hz: must be a positive frequency, got {args.nominal_hz}")
+    with make_stages("stability", quiet=args.quiet) as stage:  # stderr, on a terminal only
+        stage("reading the log")
+        res, interrupted = _analyse(args, stage)
+        summary = res.to_dict()
+        if interrupted:
+            summary["log_interrupted"] = True
+        if args.out:
+            from coilshift.analysis.report.stability_outputs import write_stability_outputs
+
+            with building_output_dir(args.out, args.force) as build:  # swapped in whole, or not at all
+                written = write_stability_outputs(res, build, summary, name_of=option_for, progress=stage)
+    if args.json:
+        print_json(summary)
+    else:
+        sys.stdout.write(table_text(res, option_for))
+        if interrupted:
+            sys.stdout.write("note: the log was interrupted (incomplete last line or run not complete)\n")
+        if args.out:
+            sys.stdout.write(f"wrote {args.out}/: {', '.join(p.name for p in written)}\n")
+    return 0
+
+
+def _analyse(args: argparse.Namespace, stage):
+    """Read the log (and temperatures) and analyse it; returns the result and whether the log was
+    interrupted. Everything that can fail on the input runs here, before any output exists."""
+    from coilshift.analysis.stability.analyse import analyse_stability
+    from coilshift.analysis.stability.tempco import read_temperature_csv
+    from coilshift.cli.options import FRAME_MS
+    from coilshift.logger.runfolder.reader import read_log
+
     log = read_log(args.log, columns=("flags",))  # only time, frequency and flags are used
     temperature = read_temperature_csv(args.temperature) if args.temperature else None
     tracker = log.meta.get("tracker") if isinstance(log.meta.get("tracker"), dict) else {}
@@ -79,26 +108,10 @@ def run(args: argparse.Namespace) -> int:
     baselines = None
     if any(not m.is_baseline for m in log.markers):
         baselines = [(m.start_s, m.end_s) for m in log.markers if m.is_baseline]
-    # everything that can fail on the input runs before any output exists
+    stage(f"analysing {log.t_s.size} frames: warm-up fit, drift, Allan deviations")
     res = analyse_stability(log.t_s, log.freq_hz, log.usable(), nominal_hz=args.nominal_hz,
                             remove_drift=args.remove_drift, confidence=args.confidence,
                             settle_hz_per_min=args.settled_hz_per_min, start_s=args.start_s, whole_log=args.whole_log,
                             baselines=baselines, temperature=temperature, source=str(args.log),
                             temperature_source=str(args.temperature), frame_s=frame_s)
-    summary = res.to_dict()
-    if log.interrupted:
-        summary["log_interrupted"] = True
-    if args.out:
-        from coilshift.analysis.report.stability_outputs import write_stability_outputs
-
-        with building_output_dir(args.out, args.force) as build:  # swapped in whole, or not at all
-            written = write_stability_outputs(res, build, summary, name_of=option_for)
-    if args.json:
-        print_json(summary)
-    else:
-        sys.stdout.write(table_text(res, option_for))
-        if log.interrupted:
-            sys.stdout.write("note: the log was interrupted (incomplete last line or run not complete)\n")
-        if args.out:
-            sys.stdout.write(f"wrote {args.out}/: {', '.join(p.name for p in written)}\n")
-    return 0
+    return res, log.interrupted

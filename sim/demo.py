@@ -134,12 +134,36 @@ class DemoRow:
         return bool(self.range_ci_mm[0] <= self.true_mm <= self.range_ci_mm[1])
 
 
-def _track(recording: Path, markers: Path | None, run_dir: Path) -> dict:
+def _track(recording: Path, markers: Path | None, run_dir: Path, progress: Callable[[str], None] | None = None) -> dict:
     from coilshift.logger.pipeline.batch import track_source
     from coilshift.logger.sources import open_source
     from coilshift.logger.tracking.tracker import TrackerSettings
 
-    return track_source(open_source(recording), TrackerSettings(), None, run_dir, markers=markers)
+    bar = None if progress is None else (lambda done_s, total_s: progress(f"{done_s:.0f}/{total_s:.0f} s of audio"))
+    return track_source(open_source(recording), TrackerSettings(), None, run_dir, markers=markers, progress=bar)
+
+
+def _within(progress: Callable[[str], None] | None, stage: str) -> Callable[[str], None] | None:
+    """``progress`` for the steps of one stage: each message prefixed with the stage."""
+    return None if progress is None else (lambda text: progress(f"{stage}: {text}"))
+
+
+def _record_sessions(out: Path, sessions: dict, say: Callable[[str], None],
+                     progress: Callable[[str], None] | None) -> dict:
+    """Simulate each session's recording and track it into ``out/runs``; returns their plans."""
+    plans = {}
+    scripts = {name: parse_script(obj, f"demo {name}") for name, obj in sessions.items()}  # all checked first
+    for name, obj in sessions.items():
+        script = scripts[name]
+        rec = out / "recordings" / name
+        rec.mkdir(parents=True, exist_ok=True)
+        write_text_atomic(rec / "script.json", json.dumps(obj, indent=2) + "\n")
+        say(f"simulating {name}: {script.duration_s:.0f} s at {script.recording.sample_rate_hz:g} Hz")
+        simulate(script, rec)
+        plans[name] = plan(script)
+        say(f"tracking {name}")
+        _track(rec / "recording.wav", rec / "markers.csv", out / "runs" / name, _within(progress, f"tracking {name}"))
+    return plans
 
 
 def _fmt_mm(x) -> str:
@@ -164,10 +188,12 @@ def range_gains(rows: list[dict], new: str = "B-200", old: str = "A-150") -> dic
 
 
 def run_demo(out_dir: str | os.PathLike, force: bool = False,
-             say: Callable[[str], None] = lambda s: None) -> dict:
+             say: Callable[[str], None] = lambda s: None, progress: Callable[[str], None] | None = None) -> dict:
     """Simulate, track, analyse and report the demo scenario into ``out_dir``.
 
-    Returns a summary dict (paths, rows, timings). ``say`` receives one-line progress messages.
+    Returns a summary dict (paths, rows, timings). ``say`` receives a one-line message as each
+    stage begins ("tracking A-150"); ``progress``, when given, also hears the steps within the
+    stages ("tracking A-150: 96/256 s of audio", "writing the calibration report: drawing plots 3/9").
     """
     from coilshift.analysis.calibration.run import analyse_run
     from coilshift.analysis.models.coil import analyse_coil, design_from_dict
@@ -182,18 +208,8 @@ def run_demo(out_dir: str | os.PathLike, force: bool = False,
     out = new_output_dir(out_dir, force)
     sessions = {"A-150": calibration_script("A-150", 11), "B-200": calibration_script("B-200", 12),
                 "B-200-stability": stability_script(13)}
-    results, plans, reports = {}, {}, {}
-    scripts = {name: parse_script(obj, f"demo {name}") for name, obj in sessions.items()}
-    for name, obj in sessions.items():
-        rec = out / "recordings" / name
-        rec.mkdir(parents=True, exist_ok=True)
-        script = scripts[name]
-        write_text_atomic(rec / "script.json", json.dumps(obj, indent=2) + "\n")
-        say(f"simulating {name}: {script.duration_s:.0f} s at {script.recording.sample_rate_hz:g} Hz")
-        simulate(script, rec)
-        plans[name] = plan(script)
-        say(f"tracking {name}")
-        _track(rec / "recording.wav", rec / "markers.csv", out / "runs" / name)
+    results, reports = {}, {}
+    plans = _record_sessions(out, sessions, say, progress)
     coils_dir = out / "coils"
     coils_dir.mkdir(exist_ok=True)
     for key, design in COILS.items():
@@ -203,11 +219,13 @@ def run_demo(out_dir: str | os.PathLike, force: bool = False,
     for key in COILS:
         say(f"analysing the {key} calibration run")
         results[key] = analyse_run(out / "runs" / key, coil=reports[key], target_models=models,
-                                   reference=REFERENCE, name=key)
-    write_outputs([results[k] for k in COILS], out / "calibration", provenance([out / "runs" / k for k in COILS]))
+                                   reference=REFERENCE, name=key, progress=_within(progress, f"analysing {key}"))
+    say("writing the calibration report")
+    write_outputs([results[k] for k in COILS], out / "calibration", provenance([out / "runs" / k for k in COILS]),
+                  progress=_within(progress, "writing the calibration report"))
 
     say("analysing the stability run")
-    stab = _stability(out)
+    stab = _stability(out, _within(progress, "stability run"))
     say("finding the passes of a hand-pass session (no markers)")
     from coilshift.sim.demo_passes import hand_pass_session
 
@@ -244,7 +262,7 @@ def run_demo(out_dir: str | os.PathLike, force: bool = False,
     return summary
 
 
-def _stability(out: Path):
+def _stability(out: Path, progress: Callable[[str], None] | None = None):
     """Analyse the demo's stability run and write its outputs (report included)."""
     from coilshift.analysis.report.html_page import provenance
     from coilshift.analysis.report.stability_outputs import write_stability_outputs
@@ -255,7 +273,8 @@ def _stability(out: Path):
     stab = analyse_stability(slog.t_s, slog.freq_hz, slog.usable(), source="B-200 stability run",
                              frame_s=slog.meta["tracker"]["frame_ms"] / 1000.0)  # marks taus inside one frame
     (out / "stability").mkdir(exist_ok=True)
-    write_stability_outputs(stab, out / "stability", prov=provenance([out / "runs" / "B-200-stability"]))
+    write_stability_outputs(stab, out / "stability", prov=provenance([out / "runs" / "B-200-stability"]),
+                            progress=progress)
     return stab
 
 

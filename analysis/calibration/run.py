@@ -19,6 +19,7 @@ import math
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Callable
 
 import numpy as np
 
@@ -159,7 +160,8 @@ def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None 
                 polarity: str = "normal", reference: dict[str, str] | None = None,
                 fit_offset: bool = False, n_boot: int = DEFAULT_BOOTSTRAP,
                 seed: int = DEFAULT_SEED, name: str | None = None,
-                placement_mm: float = DEFAULT_PLACEMENT_MM) -> CalibrationResult:
+                placement_mm: float = DEFAULT_PLACEMENT_MM,
+                progress: Callable[[str], None] | None = None) -> CalibrationResult:
     """Analyse one calibration run.
 
     Parameters
@@ -179,6 +181,7 @@ def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None 
     fit_offset : also fit the housing offset d0
     n_boot, seed : Monte Carlo draws (parametric bootstrap) and seed for the range interval
     placement_mm : tolerance +-delta of every target placement (mm)
+    progress : called with a few words as each stage begins ("reading the log", "fitting washer")
 
     Returns
     -------
@@ -194,12 +197,15 @@ def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None 
     target_models = dict(target_models or {})
     reference = dict(reference or {})
     _check_references(reference, target_models, coil)
+    say = progress or (lambda text: None)
+    say("reading the log")
     log = read_log(path, columns=("flags",))  # the analysis needs time, frequency and flags only
     src = str(path)
     if settle_s is None:
         settle_s = 0.0 if isinstance(log.meta.get("calibration"), dict) else DEFAULT_SETTLE_S
     markers = _load_markers(log, markers_path, src)
     usable = log.usable()
+    say("steps, baselines and noise")
     steps, bases = compute_steps(log.t_s, log.freq_hz, markers, usable, settle_s, source=src)
     warnings = _stretch_warnings(log, markers, steps, bases)
     points = combine_repeats(steps)
@@ -208,15 +214,16 @@ def analyse_run(path: str | os.PathLike, markers_path: str | os.PathLike | None 
     dwell_s = float(np.median([s.end_s - s.start_s for s in steps]))
     noise = _noise_and_threshold(log, bases, usable, steps, dwell_s, threshold_hz, k)
     warnings += noise.warnings
-    radius = None
-    if coil is not None:
-        radius = float(coil.mean_radius_mm)
+    radius = None if coil is None else float(coil.mean_radius_mm)
     by_target: dict[str, list[Point]] = {}
     for p in points:
         by_target.setdefault(p.target, []).append(p)
     opts = _TargetOptions(noise.threshold_hz, noise.edf, placement_mm, fit_offset, n_boot, seed, polarity, coil,
                           baseline_hz)
-    targets = [_analyse_target(tname, pts, opts, target_models.get(tname)) for tname, pts in by_target.items()]
+    targets = []
+    for tname, pts in by_target.items():
+        say(f"fitting {tname} and its range interval")
+        targets.append(_analyse_target(tname, pts, opts, target_models.get(tname)))
     warnings += _call_warnings(targets, by_target, target_models, reference, polarity)
     if any(t.range.dominant == "threshold" for t in targets):
         warnings.append(f"the threshold's noise estimate ({noise.edf:.3g} degrees of freedom) dominates the range "

@@ -21,6 +21,7 @@ import math
 import os
 from dataclasses import dataclass, replace
 from pathlib import Path
+from typing import Callable
 
 import numpy as np
 
@@ -85,23 +86,29 @@ def frames_variogram(freq_hz: np.ndarray, ok: np.ndarray, hop_s: float) -> Vario
 
 
 def find_events_in(t_s: np.ndarray, freq_hz: np.ndarray, usable: np.ndarray,
-                   settings: DetectorSettings | None = None) -> tuple[list[PassEvent], NoiseLevel, float, np.ndarray]:
-    """The three steps of the module docstring on arrays: (events, noise, level, quiet mask)."""
+                   settings: DetectorSettings | None = None,
+                   progress: Callable[[str], None] | None = None) -> tuple[list[PassEvent], NoiseLevel, float, np.ndarray]:
+    """The three steps of the module docstring on arrays: (events, noise, level, quiet mask);
+    ``progress`` is called with a few words as each step begins."""
+    say = progress or (lambda text: None)
     settings = settings or DetectorSettings()
     t = np.asarray(t_s, float)
     y = np.where(usable, np.asarray(freq_hz, float), np.nan)
     ok = np.asarray(usable, bool) & np.isfinite(y)
     hop = float(np.median(np.diff(t)))
     win = Windows.from_seconds(hop, settings.smooth_s, settings.gap_s, settings.fit_s)
+    say("measuring the noise")
     d, _, _ = deviation(t, np.where(ok, y, 0.0), ok, ok, 0, t.size, win)
     first = noise_of_statistic(d, robust=True)
     if not (first.sigma_hz > 0):
         raise InputError("the recording is too short or has too few usable frames to measure its noise "
                          f"(the detector needs more than {settings.fit_s + settings.gap_s:g} s of frames)")
     vg = frames_variogram(np.where(ok, y, 0.0), ok, hop)
+    say("finding events")
     events = detect(t, y, ok, hop, settings, first, vg)
     margin = settings.smooth_s
     quiet = _quiet_mask(t, events, margin) & ok
+    say("finding events again with the noise of the quiet frames")
     d2, _, _ = deviation(t, np.where(ok, y, 0.0), ok, quiet, 0, t.size, win)
     noise = noise_of_statistic(np.where(quiet, d2, np.nan), robust=True)
     if not (noise.sigma_hz > 0):
@@ -114,8 +121,9 @@ def find_events_in(t_s: np.ndarray, freq_hz: np.ndarray, usable: np.ndarray,
 
 
 def find_events(path: str | os.PathLike, settings: DetectorSettings | None = None,
-                name: str | None = None) -> EventsResult:
-    """Find the events of a run folder (or log CSV): see the module docstring.
+                name: str | None = None, progress: Callable[[str], None] | None = None) -> EventsResult:
+    """Find the events of a run folder (or log CSV): see the module docstring. ``progress`` is
+    called with a few words as each step begins ("reading the log", "finding events").
 
     Raises
     ------
@@ -123,12 +131,14 @@ def find_events(path: str | os.PathLike, settings: DetectorSettings | None = Non
     """
     settings = settings or DetectorSettings()
     check_settings(settings)
+    if progress is not None:
+        progress("reading the log")
     log = read_log(path, columns=("flags",))
     src = str(path)
     if log.t_s.size < 3:
         raise InputError(f"{src}: the log has fewer than 3 frames")
     usable = log.usable()
-    events, noise, level, quiet = find_events_in(log.t_s, log.freq_hz, usable, settings)
+    events, noise, level, quiet = find_events_in(log.t_s, log.freq_hz, usable, settings, progress)
     hop = float(np.median(np.diff(log.t_s)))
     warnings = []
     if log.interrupted:

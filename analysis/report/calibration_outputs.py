@@ -11,6 +11,7 @@ import io
 import json
 import os
 from pathlib import Path
+from typing import Callable
 
 from coilshift.logger.runfolder.atomic import to_jsonable, write_text_atomic
 
@@ -85,45 +86,55 @@ def summary_lines(res: CalibrationResult) -> list[str]:
     return lines
 
 
+#: the plots of one run: the report's name for it, its file, the function of plots_calibration that draws it
+RUN_PLOTS = (("curves", "curves.png", "plot_curves"), ("timeseries", "timeseries.png", "plot_timeseries"),
+             ("residuals", "residuals.png", "plot_residuals"), ("noise", "baseline_noise.png", "plot_baseline_noise"))
+
+
 def write_outputs(results: list[CalibrationResult], out_dir: str | os.PathLike,
-                  prov: Provenance | None = None) -> list[Path]:
+                  prov: Provenance | None = None, progress: Callable[[str], None] | None = None) -> list[Path]:
     """Write tables, JSON, plots and the report for one or more analysed runs into ``out_dir``.
 
     One run: files at the top of ``out_dir``. Several: one sub-folder per run (named after the
     run folder) plus ``compare.png``, ``comparison.json`` and a single ``report.html``.
+    ``progress`` is called with a few words as each stage begins ("drawing plots 3/9").
 
     Returns
     -------
     paths written
     """
-    from coilshift.analysis.report import plots_calibration as plots
-
+    say = progress or (lambda text: None)
     out_dir = Path(out_dir)
     names = unique_names(results)
     written: list[Path] = []
     all_images = []
-    for name, res in zip(names, results):
+    n_plots = len(RUN_PLOTS) * len(results) + (len(results) > 1)
+    for k, (name, res) in enumerate(zip(names, results)):
         folder = out_dir if len(results) == 1 else out_dir / name
         folder.mkdir(parents=True, exist_ok=True)
+        say("writing tables" + (f" of {name}" if len(results) > 1 else ""))
         files = {"steps.csv": steps_csv(res), "points.csv": points_csv(res),
                  "result.json": json.dumps(to_jsonable(result_details(res)), indent=2) + "\n"}
         for fname, text in files.items():
             write_text_atomic(folder / fname, text)
             written.append(folder / fname)
-        imgs = {"curves": plots.plot_curves(res, folder / "curves.png"),
-                "timeseries": plots.plot_timeseries(res, folder / "timeseries.png"),
-                "residuals": plots.plot_residuals(res, folder / "residuals.png"),
-                "noise": plots.plot_baseline_noise(res, folder / "baseline_noise.png")}
-        written += [folder / f"{k}.png" for k in ("curves", "timeseries", "residuals")]
-        written.append(folder / "baseline_noise.png")
+        from coilshift.analysis.report import plots_calibration as plots  # matplotlib: loaded when first drawn
+
+        imgs = {}
+        for j, (key, fname, draw) in enumerate(RUN_PLOTS):
+            say(f"drawing plots {k * len(RUN_PLOTS) + j + 1}/{n_plots}")
+            imgs[key] = getattr(plots, draw)(res, folder / fname)
+            written.append(folder / fname)
         all_images.append(imgs)
     compare_png = None
     if len(results) > 1:
+        say(f"drawing plots {n_plots}/{n_plots}")
         compare_png = plots.plot_compare(results, names, out_dir / "compare.png")
         rows = [r.to_dict() for r in compare_runs(results, names)]
         write_text_atomic(out_dir / "comparison.json", json.dumps(to_jsonable({"runs": names, "targets": rows}),
                                                                   indent=2) + "\n")
         written += [out_dir / "compare.png", out_dir / "comparison.json"]
+    say("writing the report")
     write_text_atomic(out_dir / "report.html", report_html(results, all_images, compare_png, prov))
     written.append(out_dir / "report.html")
     return written

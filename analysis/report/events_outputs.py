@@ -8,6 +8,7 @@ import io
 import json
 import os
 from pathlib import Path
+from typing import Callable
 
 from coilshift.analysis.events.find import EventsResult
 from coilshift.logger.runfolder.atomic import to_jsonable, write_text_atomic
@@ -84,12 +85,18 @@ def report_html(res: EventsResult, png: bytes) -> str:
     return page(f"Events in {res.name}", provenance([res.source]), body)
 
 
-def write_events_outputs(res: EventsResult, out_dir: str | os.PathLike) -> None:
-    """events.csv, events.json, events.png and report.html into ``out_dir`` (atomic files)."""
-    from coilshift.analysis.report.plots_events import plot_events
-
+def write_events_outputs(res: EventsResult, out_dir: str | os.PathLike,
+                         progress: Callable[[str], None] | None = None) -> None:
+    """events.csv, events.json, events.png and report.html into ``out_dir`` (atomic files);
+    ``progress`` is called with a few words as each stage begins."""
+    say = progress or (lambda text: None)
+    say("writing the tables")
     out = Path(out_dir)
     write_text_atomic(out / "events.csv", events_csv(res))
     write_text_atomic(out / "events.json", json.dumps(to_jsonable(events_summary(res)), indent=2) + "\n")
+    say("drawing the plot")
+    from coilshift.analysis.report.plots_events import plot_events  # matplotlib: loaded only to draw
+
     png = plot_events(res, out / "events.png")
+    say("writing the report")
     write_text_atomic(out / "report.html", report_html(res, png))

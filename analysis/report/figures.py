@@ -1,8 +1,11 @@
-"""Figure set-up shared by every plot: the Agg backend, new figures, and saving as PNG.
+"""Figure set-up shared by every plot: new figures on the Agg canvas, and saving as PNG.
 
-Plot modules make their figures here, never through pyplot themselves, so the backend is chosen
-once, before pyplot is loaded, and every figure is saved and closed the same way: PNG bytes in
-memory, then (given a path) one atomic write, so a finished plot appears whole or not at all.
+Plot modules make their figures here, never through pyplot: a figure is a plain
+:class:`matplotlib.figure.Figure` on an Agg canvas (files only, never a window), so pyplot, its
+figure registry and its backends are never loaded, and nothing holds a figure once it is saved.
+Each figure is made at the resolution it is saved at, so the layout pass (``tight_layout``) and
+the final drawing measure the text once, with one renderer. Saving gives PNG bytes in memory,
+then (given a path) one atomic write, so a finished plot appears whole or not at all.
 """
 
 from __future__ import annotations
@@ -13,8 +16,9 @@ import os
 import matplotlib
 import numpy as np
 
-matplotlib.use("Agg")  # files only, never a window
-import matplotlib.pyplot as plt  # noqa: E402
+matplotlib.use("Agg")  # should anything load pyplot later: files only, never a window
+from matplotlib.backends.backend_agg import FigureCanvasAgg  # noqa: E402
+from matplotlib.figure import Figure  # noqa: E402
 
 from coilshift.logger.runfolder.atomic import write_bytes_atomic  # noqa: E402
 
@@ -23,24 +27,31 @@ DPI = 120
 #: most points a time-series trace is drawn with
 MAX_TRACE_POINTS = 20000
 #: matplotlib's default colour cycle, for plots that colour by target or run
-COLORS: tuple[str, ...] = tuple(plt.rcParams["axes.prop_cycle"].by_key()["color"])
+COLORS: tuple[str, ...] = tuple(matplotlib.rcParams["axes.prop_cycle"].by_key()["color"])
+
+#: the arguments of :meth:`matplotlib.figure.Figure.subplots` (the rest go to the figure)
+_SUBPLOT_ARGS = frozenset({"sharex", "sharey", "squeeze", "width_ratios", "height_ratios", "subplot_kw",
+                           "gridspec_kw"})
 
 
-def subplots(nrows: int = 1, ncols: int = 1, **kwargs):
-    """A new figure and its axes (arguments as :func:`matplotlib.pyplot.subplots`)."""
-    return plt.subplots(nrows, ncols, **kwargs)
+def subplots(nrows: int = 1, ncols: int = 1, dpi: float = DPI, **kwargs):
+    """A new figure at ``dpi`` (the resolution it will be saved at) and its axes; the arguments
+    are those of :func:`matplotlib.pyplot.subplots`."""
+    grid = {k: kwargs.pop(k) for k in list(kwargs) if k in _SUBPLOT_ARGS}
+    fig = Figure(dpi=dpi, **kwargs)
+    FigureCanvasAgg(fig)  # the canvas attaches itself to the figure
+    return fig, fig.subplots(nrows, ncols, **grid)
 
 
-def png_bytes(fig, dpi: float = DPI) -> bytes:
-    """The figure as PNG bytes; the figure is closed (its memory freed) afterwards."""
+def png_bytes(fig, dpi: float | None = None) -> bytes:
+    """The figure as PNG bytes, at ``dpi`` (default: the figure's own)."""
     buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=dpi)
-    plt.close(fig)
+    fig.savefig(buf, format="png", dpi=fig.dpi if dpi is None else dpi)
     return buf.getvalue()
 
 
-def save_png(fig, path: str | os.PathLike | None, dpi: float = DPI) -> bytes:
-    """Close the figure and return it as PNG bytes, written atomically to ``path`` when given."""
+def save_png(fig, path: str | os.PathLike | None, dpi: float | None = None) -> bytes:
+    """The figure as PNG bytes (see :func:`png_bytes`), written atomically to ``path`` when given."""
     data = png_bytes(fig, dpi)
     if path is not None:
         write_bytes_atomic(path, data)

@@ -97,7 +97,7 @@ def _sign_legend(ax) -> None:
 
 def plot_curves(res: CalibrationResult, path: str | os.PathLike | None = None) -> bytes:
     """|shift| against distance on log-log axes: points with errors, fits, threshold, range."""
-    fig, ax = subplots(figsize=(12, 6.2))
+    fig, ax = subplots(figsize=(12, 6.2), dpi=DPI)
     lo, hi = _span(res)
     d_grid = np.geomspace(lo, hi, 300)
     for i, t in enumerate(res.targets):
@@ -116,7 +116,7 @@ def plot_curves(res: CalibrationResult, path: str | os.PathLike | None = None) -
     ax.grid(True, which="both", alpha=0.3)
     ax.legend(fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0)
     fig.tight_layout()
-    return save_png(fig, path, dpi=DPI)
+    return save_png(fig, path)
 
 
 def _floor_axis(ax, res: CalibrationResult) -> None:
@@ -128,7 +128,7 @@ def _floor_axis(ax, res: CalibrationResult) -> None:
 
 def plot_timeseries(res: CalibrationResult, path: str | os.PathLike | None = None) -> bytes:
     """Shift against time with target stretches shaded and the interpolated baseline drawn."""
-    fig, ax = subplots(figsize=(11, 5))
+    fig, ax = subplots(figsize=(11, 5), dpi=DPI)
     log = res.log
     t, y = decimate_trace(log.t_s, log.freq_hz - res.baseline_hz)
     ax.plot(t, y, "-", color="0.25", lw=0.6, label="tracked frequency - baseline")
@@ -155,7 +155,7 @@ def plot_timeseries(res: CalibrationResult, path: str | os.PathLike | None = Non
     ax.grid(True, alpha=0.3)
     ax.legend(fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0)
     fig.tight_layout()
-    return save_png(fig, path, dpi=DPI)
+    return save_png(fig, path)
 
 
 def plot_baseline_noise(res: CalibrationResult, path: str | os.PathLike | None = None) -> bytes:
@@ -165,7 +165,7 @@ def plot_baseline_noise(res: CalibrationResult, path: str | os.PathLike | None =
     from coilshift.analysis.stability import allan
     from coilshift.analysis.stability.grid import to_uniform
 
-    fig, ax = subplots(figsize=(8, 4.5))
+    fig, ax = subplots(figsize=(8, 4.5), dpi=DPI)
     log = res.log
     drawn = False
     try:
@@ -194,12 +194,12 @@ def plot_baseline_noise(res: CalibrationResult, path: str | os.PathLike | None =
     ax.grid(True, which="both", alpha=0.3)
     ax.legend(fontsize=8)
     fig.tight_layout()
-    return save_png(fig, path, dpi=DPI)
+    return save_png(fig, path)
 
 
 def plot_residuals(res: CalibrationResult, path: str | os.PathLike | None = None) -> bytes:
     """Normalised residuals (measured - fit)/effective error of the curve fits against distance."""
-    fig, ax = subplots(figsize=(9, 4.5))
+    fig, ax = subplots(figsize=(9, 4.5), dpi=DPI)
     any_fit = False
     for i, t in enumerate(res.targets):
         if t.fit is None:
@@ -224,7 +224,7 @@ def plot_residuals(res: CalibrationResult, path: str | os.PathLike | None = None
     else:
         ax.text(0.5, 0.5, "no fitted curve", transform=ax.transAxes, ha="center")
     fig.tight_layout()
-    return save_png(fig, path, dpi=DPI)
+    return save_png(fig, path)
 
 
 def plot_compare(results: list[CalibrationResult], names: list[str],
@@ -237,7 +237,7 @@ def plot_compare(results: list[CalibrationResult], names: list[str],
                 targets.append(t.target)
     ncol = 1  # one target a row, legend to its right
     nrow = math.ceil(len(targets) / ncol)
-    fig, axes = subplots(nrow, ncol, figsize=(12, 4.2 * nrow + 0.6), squeeze=False)
+    fig, axes = subplots(nrow, ncol, figsize=(12, 4.2 * nrow + 0.6), squeeze=False, dpi=DPI)
     for k, tname in enumerate(targets):
         ax = axes[k // ncol][k % ncol]
         lo, hi = 1e9, 0.0
@@ -272,4 +272,4 @@ def plot_compare(results: list[CalibrationResult], names: list[str],
         axes[k // ncol][k % ncol].set_visible(False)
     fig.suptitle("Runs compared (filled triangle down: frequency falls; open up: rises; diamond: range)")
     fig.tight_layout(rect=(0, 0, 1, 1 - 0.5 / fig.get_figheight()))
-    return save_png(fig, path, dpi=DPI)
+    return save_png(fig, path)

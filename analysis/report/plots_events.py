@@ -8,7 +8,7 @@ import os
 import numpy as np
 
 from coilshift.analysis.events.find import EventsResult
-from coilshift.analysis.report.figures import DPI, decimate_trace, save_png, subplots
+from coilshift.analysis.report.figures import decimate_trace, save_png, subplots
 from coilshift.logger.events.measure import FERROUS, NON_FERROUS
 
 KIND_COLORS = {FERROUS: "#c0392b", NON_FERROUS: "#2471a3"}
@@ -50,4 +50,4 @@ def plot_events(res: EventsResult, path: str | os.PathLike | None = None) -> byt
     ax.grid(True, alpha=0.3)
     ax.legend(handles=handles, fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0)
     fig.tight_layout()
-    return save_png(fig, path, dpi=DPI)
+    return save_png(fig, path)

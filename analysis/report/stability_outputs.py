@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import os
 from pathlib import Path
+from typing import Callable
 
 import pandas as pd
 
@@ -46,7 +47,8 @@ def stability_csv(res: StabilityResult) -> str:
 
 
 def write_stability_outputs(result: StabilityResult, out_dir: str | os.PathLike,
-                            summary: dict | None = None, prov=None, name_of=str) -> list[Path]:
+                            summary: dict | None = None, prov=None, name_of=str,
+                            progress: Callable[[str], None] | None = None) -> list[Path]:
     """Write ``sigma_tau.png``, ``drift.png``, ``stability.csv``, ``stability.json`` and
     ``report.html`` into ``out_dir``.
 
@@ -59,6 +61,7 @@ def write_stability_outputs(result: StabilityResult, out_dir: str | os.PathLike,
     prov : the report's provenance (:func:`~coilshift.analysis.report.html_page.provenance`;
         default: now, this command line, the log named in the result)
     name_of : how the report names a setting (the command line passes its option names)
+    progress : called with a few words as each stage begins ("drawing plots 1/2")
 
     Returns
     -------
@@ -67,9 +70,13 @@ def write_stability_outputs(result: StabilityResult, out_dir: str | os.PathLike,
     out = Path(out_dir)
     from coilshift.analysis.report.stability_html import report_html
 
+    say = progress or (lambda text: None)
     paths = [out / SIGMA_TAU_PNG, out / DRIFT_PNG, out / TABLE_CSV, out / SUMMARY_JSON, out / REPORT_HTML]
+    say("drawing plots 1/2")
     plot_sigma_tau(result, paths[0])
+    say("drawing plots 2/2")
     plot_drift(result, paths[1])
+    say("writing the table and the report")
     write_text_atomic(paths[2], stability_csv(result))
     write_json_atomic(paths[3], result.to_dict() if summary is None else summary)
     write_text_atomic(paths[4], report_html(result, paths[0].read_bytes(), paths[1].read_bytes(), prov, name_of))

@@ -16,6 +16,7 @@ from coilshift.cli.main import main
 
 
 import synthcal  # noqa: E402  (tests/ is on sys.path, see tests/conftest.py)
+from ttystream import on_a_terminal, stages  # noqa: E402
 
 
 @pytest.fixture(scope="module")
@@ -152,3 +153,30 @@ def test_guided_calibration_end_to_end_on_a_paced_synthetic_tone(tmp_path, capsy
     # settled stretches: each starts at least --settle after the previous one ended
     assert all(s - e >= 0.1 - 0.03 for s, e in zip(starts[1:], ends[:-1]))
     assert math.isclose(ends[1] - starts[1], 0.5, abs_tol=0.05)
+
+
+def test_a_terminal_is_told_each_stage(runs, tmp_path, capsys, monkeypatch):
+    tty = on_a_terminal(monkeypatch)
+    rc, out, err = _run(capsys, "analyze", runs / "small", runs / "large", "-o", tmp_path / "out", "--bootstrap", "0")
+    assert rc == 0 and err == ""
+    fit = "fitting {} and its range interval"
+    runs_part = [f"run {i} of 2 ({name}): {step}" for i, name, targets in ((1, "small", ("washer", "foil")),
+                                                                           (2, "large", ("washer",)))
+                 for step in ("reading the log", "steps, baselines and noise", *(fit.format(t) for t in targets))]
+    plots = [f"drawing plots {k}/9" for k in range(1, 10)]
+    outputs = ["writing tables of small", *plots[:4], "writing tables of large", *plots[4:], "writing the report"]
+    assert stages(tty) == [f"analyze: {s}" for s in runs_part + outputs]
+    # the line is blanked before the summary is printed, and stdout never sees it
+    assert tty.getvalue().endswith("\r") and "\n" not in tty.getvalue()
+    assert out.startswith("run ") and "\r" not in out
+
+
+def test_no_progress_on_a_pipe_or_with_quiet_and_json_stays_json(runs, tmp_path, capsys, monkeypatch):
+    rc, out, err = _run(capsys, "analyze", runs / "small", "-o", tmp_path / "a", "--bootstrap", "0")
+    assert rc == 0 and err == ""  # stderr is not a terminal here (captured)
+    tty = on_a_terminal(monkeypatch)
+    rc, _, _ = _run(capsys, "analyze", runs / "small", "-o", tmp_path / "b", "--bootstrap", "0", "--quiet")
+    assert rc == 0 and tty.getvalue() == ""
+    rc, out, _ = _run(capsys, "analyze", runs / "small", "--json", "--bootstrap", "0")
+    assert rc == 0 and "analyze: small: reading the log" in tty.getvalue()  # the line is on stderr only
+    assert json.loads(out)["targets"] and out.lstrip().startswith("{") and out.rstrip().endswith("}")

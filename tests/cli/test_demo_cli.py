@@ -8,8 +8,10 @@ import subprocess
 import sys
 
 import pytest
+from ttystream import on_a_terminal, stages
 
 from coilshift.cli import cmd_demo
+from coilshift.cli.main import main
 
 # Run the demo in a fresh interpreter and prove that no audio library was loaded on the way.
 _RUNNER = """
@@ -35,6 +37,9 @@ def test_demo_runs_and_reports(demo):
     assert r.returncode == 0, r.stderr
     assert f"report: {out / 'report.html'}" in r.stdout
     assert "synthetic" in r.stdout
+    # stderr is a pipe here: one plain line as each stage begins, never a redrawn line
+    lines = r.stderr.splitlines()
+    assert "tracking A-150" in lines and "writing the calibration report" in lines and "\r" not in r.stderr
     for rel in ("report.html", "summary.json", "calibration/report.html", "calibration/compare.png",
                 "calibration/A-150/curves.png", "calibration/B-200/timeseries.png",
                 "stability/sigma_tau.png", "stability/drift.png"):
@@ -108,3 +113,49 @@ def test_default_folder_never_reuses_a_full_one(tmp_path, monkeypatch):
     assert str(cmd_demo._free_dir()) == "coilshift-demo"  # empty: fine to use
     (tmp_path / "coilshift-demo" / "report.html").write_text("old")
     assert str(cmd_demo._free_dir()) == "coilshift-demo-2"
+
+
+def _fake_demo(out_dir, force, say, progress=None):
+    # stands in for sim.demo.run_demo: the command's wiring of its two progress callbacks
+    from pathlib import Path
+
+    say("simulating A-150: 256 s at 48000 Hz")
+    if progress is not None:
+        progress("tracking A-150: 96/256 s of audio")
+    say("writing the calibration report")
+    Path(out_dir, "report.html").write_text("<html></html>")
+    return {"report": "report.html", "calibration_report": "calibration/report.html", "rows": [],
+            "stability": {"oadev_hz_at_1s": None}}
+
+
+def test_progress_a_line_on_a_terminal_plain_lines_on_a_pipe(tmp_path, capsys, monkeypatch):
+    monkeypatch.setattr("coilshift.sim.demo.run_demo", _fake_demo)
+    assert main(["demo", "-o", str(tmp_path / "pipe")]) == 0
+    cap = capsys.readouterr()
+    assert cap.err == "simulating A-150: 256 s at 48000 Hz\nwriting the calibration report\n"
+    tty = on_a_terminal(monkeypatch)
+    assert main(["demo", "-o", str(tmp_path / "tty")]) == 0
+    assert stages(tty) == ["demo: simulating A-150: 256 s at 48000 Hz", "demo: tracking A-150: 96/256 s of audio",
+                           "demo: writing the calibration report"]
+    assert tty.getvalue().endswith("\r") and "report: " in capsys.readouterr().out
+    for flag in ("--quiet", "--json"):
+        quiet = on_a_terminal(monkeypatch)
+        assert main(["demo", "-o", str(tmp_path / flag.strip("-")), flag]) == 0
+        assert quiet.getvalue() == ""
+        out = capsys.readouterr().out
+        assert json.loads(out)["rows"] == [] if flag == "--json" else "report: " in out  # --json: one JSON object
+
+
+def test_each_recording_reports_its_tracking(tmp_path):
+    # a short session through the demo's own simulate-and-track step: the stage messages, and the
+    # tracker's progress as seconds of audio, prefixed with the stage
+    from coilshift.sim import demo
+
+    session = demo.stability_script(5)
+    session["session"]["steps"][0]["hold_s"] = 4.0
+    said, steps = [], []
+    plans = demo._record_sessions(tmp_path, {"short": session}, said.append, steps.append)
+    assert said == ["simulating short: 4 s at 48000 Hz", "tracking short"]
+    assert steps and all(re.fullmatch(r"tracking short: \d+/\d+ s of audio", s) for s in steps), steps
+    assert steps[-1].split(": ")[1].split("/")[0] == steps[-1].split("/")[1].split()[0]  # ends at the end
+    assert set(plans) == {"short"} and (tmp_path / "runs" / "short" / "log.csv").is_file()

@@ -6,6 +6,7 @@ import sys
 
 import numpy as np
 import pytest
+from ttystream import on_a_terminal, stages
 
 from coilshift.sim.fields import Winding
 from coilshift.sim.logsession import FrameNoise
@@ -47,3 +48,21 @@ def test_events_refuses_bad_input_in_one_line(tmp_path):
     assert r.returncode == 2 and len(r.stderr.strip().splitlines()) == 1
     r = _cs("events", tmp_path, "--false-per-hour", "0")
     assert r.returncode == 2 and "--false-per-hour" in r.stderr
+
+
+def test_progress_on_a_terminal_only(run_dir, tmp_path, capsys, monkeypatch):
+    from coilshift.cli.main import main
+
+    assert main(["events", str(run_dir), "-o", str(tmp_path / "a")]) == 0
+    assert capsys.readouterr().err == ""  # captured stderr is not a terminal: no line
+    tty = on_a_terminal(monkeypatch)
+    assert main(["events", str(run_dir), "-o", str(tmp_path / "b"), "--json"]) == 0
+    assert len(json.loads(capsys.readouterr().out)["events"]) == 2  # stdout stays exactly one JSON object
+    assert stages(tty) == [f"events: {s}" for s in (
+        "reading the log", "measuring the noise", "finding events",
+        "finding events again with the noise of the quiet frames", "writing the tables", "drawing the plot",
+        "writing the report")]
+    assert tty.getvalue().endswith("\r") and "\n" not in tty.getvalue()
+    quiet = on_a_terminal(monkeypatch)
+    assert main(["events", str(run_dir), "--quiet"]) == 0
+    assert quiet.getvalue() == ""

@@ -7,6 +7,7 @@ import json
 
 import numpy as np
 import pytest
+from ttystream import on_a_terminal, stages
 
 from coilshift.analysis.stability.analyse import analyse_stability
 from coilshift.cli.main import main
@@ -189,3 +190,19 @@ def test_undetermined_drift_is_said_with_its_reason(tmp_path, capsys):
     assert main(["stability", str(p), "--json"]) == 0
     out = json.loads(capsys.readouterr().out)
     assert out["drift_hz_per_min"] is None and out["drift"]["determined"] is False
+
+
+def test_progress_on_a_terminal_only(run_dir, tmp_path, capsys, monkeypatch):
+    assert main(["stability", str(run_dir), "-o", str(tmp_path / "a")]) == 0
+    assert capsys.readouterr().err == ""  # captured stderr is not a terminal: no line
+    tty = on_a_terminal(monkeypatch)
+    assert main(["stability", str(run_dir), "-o", str(tmp_path / "b"), "--json"]) == 0
+    out = capsys.readouterr().out
+    assert json.loads(out)["tau_s"]  # stdout stays exactly one JSON object
+    assert stages(tty) == [f"stability: {s}" for s in (
+        "reading the log", "analysing 3000 frames: warm-up fit, drift, Allan deviations",
+        "drawing plots 1/2", "drawing plots 2/2", "writing the table and the report")]
+    assert tty.getvalue().endswith("\r") and "\n" not in tty.getvalue()
+    quiet = on_a_terminal(monkeypatch)
+    assert main(["stability", str(run_dir), "--quiet"]) == 0
+    assert quiet.getvalue() == ""
