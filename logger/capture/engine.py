@@ -83,7 +83,7 @@ class CaptureEngine:
     def __init__(self, source, run_dir: str | Path, settings, corrections=None, *, baseline_s: float = 2.0,
                  save_audio: bool = False, max_seconds: float | None = None, meta: dict | None = None,
                  queue_blocks: int = 4000, append_interval_s: float = 0.25, fsync_interval_s: float = 0.75,
-                 stall_timeout_s: float = 3.0, track_batch_s: float = 0.2, tracker_factory=None,
+                 stall_timeout_s: float = 3.0, track_batch_s: float = 0.25, tracker_factory=None,
                  claim=None, close_timeout_s: float = 5.0, events=None):
         if baseline_s <= 0:
             raise InputError(f"{setting('baseline_s')} must be > 0, got {baseline_s}")

@@ -23,6 +23,7 @@ import numpy as np
 from coilshift.logger.errors import InputError, setting
 from coilshift.logger.pipeline.baseline import Baseline, baseline_from_markers, baseline_from_start
 from coilshift.logger.pipeline.corrections import Corrections, clock_ppm_from_tone, level_warnings
+from coilshift.logger.pipeline.prefetch import read_ahead
 from coilshift.logger.pipeline.runmeta import baseline_meta, run_meta, tracker_meta
 from coilshift.logger.pipeline.stage import FrameStage, LogFeed
 from coilshift.logger.runfolder import columns as _columns
@@ -65,8 +66,9 @@ def run_tracker(source, settings, progress: ProgressFn | None = None) -> tuple[F
     parts: list[FrameTable] = []
     done = 0
     total_s = source.duration_s
+    blocks = read_ahead(source.blocks(block_frames))  # the next block decodes while this one is tracked
     try:
-        for block in source.blocks(block_frames):
+        for block in blocks:
             try:
                 parts.append(tracker.push(block))
             except InputError as exc:  # NaN or infinite samples in a float recording
@@ -76,6 +78,7 @@ def run_tracker(source, settings, progress: ProgressFn | None = None) -> tuple[F
                 progress(done / fs, total_s)
         parts.append(tracker.finish())
     finally:
+        blocks.close()  # stops the reader (and closes the file) when tracking failed
         tracker.close()
     return FrameTable.concat(parts), tracker
 
