@@ -27,13 +27,6 @@ def analysis_kwargs(args) -> dict:
             "placement_mm": args.placement_mm}
 
 
-def report_results(results, args) -> None:
-    """Write the output folder when asked, then print the summary (text or JSON)
-    (``args.out``, ``args.force``, ``args.json``)."""
-    write_results(results, args)
-    print_results(results, args)
-
-
 def write_results(results, args, progress=None) -> None:
     """Write the output folder ``args.out`` (built aside, swapped in whole) when asked;
     ``progress`` (a stage line) hears what is being written."""

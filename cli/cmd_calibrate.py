@@ -113,7 +113,7 @@ def run(args) -> int:
     import math
     from pathlib import Path
 
-    from coilshift.cli.analysis_args import analysis_kwargs, report_results
+    from coilshift.cli.analysis_args import analysis_kwargs
     from coilshift.cli.cautions import show_caution
     from coilshift.cli.inputs import live_source
     from coilshift.cli.tracking_args import check_tracking_options, tracking_from_args
@@ -181,11 +181,21 @@ def run(args) -> int:
     if n_targets == 0:
         print("coilshift: no target stretch was recorded, nothing to analyse", file=sys.stderr)
         return 130 if interrupted else 1
-    from coilshift.analysis.calibration.run import analyse_run
-
-    # run.json has the "calibration" entry: the analysis knows the stretches start settled
-    res = analyse_run(run_dir, **kwargs)
-    report_results([res], argparse.Namespace(out=args.analysis_out, force=args.force, json=args.json))
+    _analyse_session(run_dir, kwargs, args)
     if interrupted:
         return 130
     return 0 if summary["status"] == "complete" else 1
+
+
+def _analyse_session(run_dir, kwargs: dict, args) -> None:
+    """Analyse the recorded session, write its outputs, print the results (a stage line meanwhile)."""
+    from coilshift.analysis.calibration.run import analyse_run
+    from coilshift.cli.analysis_args import print_results, write_results
+    from coilshift.logger.progress import make_stages
+
+    outputs = argparse.Namespace(out=args.analysis_out, force=args.force, json=args.json)
+    with make_stages("calibrate") as stage:  # stderr, on a terminal only; cleared before the results
+        # run.json has the "calibration" entry: the analysis knows the stretches start settled
+        res = analyse_run(run_dir, progress=stage, **kwargs)
+        write_results([res], outputs, progress=stage)
+    print_results([res], outputs)

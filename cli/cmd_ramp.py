@@ -4,7 +4,7 @@ steady pace from one distance to another (compared with the run's fixed stops wh
 from __future__ import annotations
 
 from coilshift.cli.options import (COUNT, add_analysis_options, add_force_option, add_json_option,
-                                   add_markers_option, add_out_option)
+                                   add_markers_option, add_out_option, add_quiet_option)
 
 ORDER = 42
 
@@ -26,6 +26,7 @@ def register(subparsers) -> None:
     add_json_option(p, "print one JSON object instead of the text")
     add_out_option(p, "write ramp.json and ramp_points.csv to this new folder", metavar="OUT")
     add_force_option(p, "allow OUT to be a non-empty folder")
+    add_quiet_option(p, "no progress line on stderr")
     p.set_defaults(func=run)
 
 
@@ -66,6 +67,7 @@ def run(args) -> int:
     from coilshift.analysis.calibration.run import analyse_run
     from coilshift.cli.analysis_args import analysis_kwargs
     from coilshift.cli.common import note_done, print_json
+    from coilshift.logger.progress import make_stages
     from coilshift.logger.runfolder.atomic import to_jsonable, write_text_atomic
     from coilshift.logger.runfolder.markers import read_markers
     from coilshift.logger.runfolder.outputs import building_output_dir
@@ -75,15 +77,17 @@ def run(args) -> int:
     kwargs = analysis_kwargs(args)
     markers = read_markers(args.markers) if args.markers else read_log(args.run, columns=()).markers
     fixed = None
-    if any(not m.is_baseline for m in markers):
-        fixed = analyse_run(args.run, args.markers, **kwargs)
     results = []
-    for spec in specs:
-        thr = dict(threshold_hz=fixed.threshold_hz, threshold_edf=fixed.threshold_edf) if fixed is not None \
-            else dict(threshold_hz=kwargs["threshold_hz"])
-        results.append(analyse_ramp(args.run, spec, args.markers, bins=args.bins, k=kwargs["k"], coil=kwargs["coil"],
-                                    placement_mm=kwargs["placement_mm"], n_boot=kwargs["n_boot"], seed=kwargs["seed"],
-                                    fixed=fixed, **thr))
+    with make_stages("ramp", quiet=args.quiet) as stage:  # stderr, on a terminal only
+        if any(not m.is_baseline for m in markers):
+            fixed = analyse_run(args.run, args.markers, progress=lambda text: stage(f"fixed stops: {text}"), **kwargs)
+        for spec in specs:
+            stage(f"slide of {spec.target}: points, fits and range interval")
+            thr = dict(threshold_hz=fixed.threshold_hz, threshold_edf=fixed.threshold_edf) if fixed is not None \
+                else dict(threshold_hz=kwargs["threshold_hz"])
+            results.append(analyse_ramp(args.run, spec, args.markers, bins=args.bins, k=kwargs["k"],
+                                        coil=kwargs["coil"], placement_mm=kwargs["placement_mm"],
+                                        n_boot=kwargs["n_boot"], seed=kwargs["seed"], fixed=fixed, **thr))
     summary = {"run": str(args.run), "ramps": [ramp_summary(r) for r in results]}
     if args.out:
         with building_output_dir(args.out, args.force) as build:

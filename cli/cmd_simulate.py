@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from coilshift.cli.options import add_force_option, add_json_option, add_out_option
+from coilshift.cli.options import add_force_option, add_json_option, add_out_option, add_quiet_option
 
 ORDER = 80
 
@@ -19,6 +19,7 @@ def register(subparsers) -> None:
     add_out_option(p, "output folder (new, or empty)", required=True)
     add_force_option(p, "allow a non-empty output folder")
     add_json_option(p, "print a JSON summary instead of text")
+    add_quiet_option(p, "no progress bar")
     p.set_defaults(func=run)
 
 
@@ -26,13 +27,15 @@ def run(args) -> int:
     from pathlib import Path
 
     from coilshift.cli.common import note_done, print_json
+    from coilshift.logger.progress import make_progress
     from coilshift.logger.runfolder.outputs import building_output_dir
     from coilshift.sim.render import simulate
     from coilshift.sim.script import load_script
 
     script = load_script(args.script)  # check the script before touching the output folder
     with building_output_dir(args.out, args.force) as build:  # swapped in whole, or not at all
-        summary = simulate(script, build)
+        with make_progress("rendering", quiet=args.quiet) as bar:  # stderr, on a terminal only
+            summary = simulate(script, build, progress=bar)
     for key in ("recording", "markers", "truth"):  # where the files are now
         summary[key] = str(Path(args.out) / Path(summary[key]).name)
     note_done(f"the simulation was written to {args.out}")

@@ -199,8 +199,11 @@ def _inductance_uh(s: Script) -> float | None:
     return coil_inductance_uh(s.oscillator.coil, f"{s.name}: oscillator.coil")
 
 
-def write_recording(p: Plan, path: str | os.PathLike, block_frames: int = BLOCK_FRAMES) -> None:
-    """Stream the audio into ``path`` (WAV or FLAC by the script), via a temp file and a rename."""
+def write_recording(p: Plan, path: str | os.PathLike, block_frames: int = BLOCK_FRAMES, progress=None) -> None:
+    """Stream the audio into ``path`` (WAV or FLAC by the script), via a temp file and a rename.
+
+    ``progress(done_s, total_s)``, when given, hears the seconds of audio written after each block.
+    """
     import soundfile as sf
 
     rec = p.script.recording
@@ -211,8 +214,12 @@ def write_recording(p: Plan, path: str | os.PathLike, block_frames: int = BLOCK_
     try:
         with sf.SoundFile(tmp, "w", samplerate=int(round(rec.sample_rate_hz)), channels=1,
                           subtype=subtype, format=rec.encoding.upper()) as fh:
+            done, rate, total_s = 0, float(rec.sample_rate_hz), p.n_samples / float(rec.sample_rate_hz)
             for b in blocks(p, block_frames):
                 fh.write((b << shift).astype(np.int16 if rec.bits == 16 else np.int32))
+                done += b.shape[0]
+                if progress is not None:
+                    progress(done / rate, total_s)
         fd = os.open(tmp, os.O_RDONLY)  # on disk before the rename makes it the recording
         try:
             os.fsync(fd)
@@ -225,16 +232,17 @@ def write_recording(p: Plan, path: str | os.PathLike, block_frames: int = BLOCK_
         raise
 
 
-def simulate(script: Script, out_dir: str | os.PathLike) -> dict:
+def simulate(script: Script, out_dir: str | os.PathLike, progress=None) -> dict:
     """Write ``recording.wav`` (or ``.flac``), ``markers.csv`` and ``truth.json`` into ``out_dir``.
 
-    Returns a small summary dict (paths, duration, frequencies).
+    Returns a small summary dict (paths, duration, frequencies). ``progress(done_s, total_s)``
+    hears the seconds of audio rendered (:func:`write_recording`).
     """
     rec = script.recording
     out_dir = Path(out_dir)
     p = plan(script)
     audio = out_dir / f"recording.{rec.encoding}"
-    write_recording(p, audio)
+    write_recording(p, audio, progress=progress)
     write_text_atomic(out_dir / "markers.csv", markers_to_csv(markers_for(p)))
     truth = truth_for(p)
     write_json_atomic(out_dir / "truth.json", truth)

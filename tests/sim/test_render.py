@@ -203,3 +203,32 @@ def test_coil_and_physical_targets_drive_the_tone():
     m = markers_for(p)
     assert zero_crossing_freq_hz(_hold(x, m[0]), FS) == pytest.approx(f0, abs=1e-3)
     assert zero_crossing_freq_hz(_hold(x, m[1]), FS) == pytest.approx(f0 + shift, abs=1e-3)
+
+
+def test_progress_hears_the_audio_written_block_by_block(tmp_path):
+    s = parse_script(script_dict(), "t")
+    heard = []
+    simulate(s, tmp_path, progress=lambda done, total: heard.append((done, total)))
+    info = sf.info(tmp_path / "recording.wav")
+    total = info.frames / info.samplerate
+    assert heard and all(t == pytest.approx(total) for _, t in heard)
+    done = [d for d, _ in heard]
+    assert done == sorted(done) and done[-1] == pytest.approx(total)
+
+
+def test_simulate_command_draws_its_bar_on_a_terminal_only(tmp_path, capsys, monkeypatch):
+    from ttystream import on_a_terminal
+
+    from coilshift.cli.main import main
+
+    script = tmp_path / "s.json"
+    script.write_text(json.dumps(script_dict()))
+    assert main(["simulate", str(script), "-o", str(tmp_path / "a")]) == 0
+    assert capsys.readouterr().err.count("\r") == 0  # captured stderr is not a terminal
+    tty = on_a_terminal(monkeypatch)
+    assert main(["simulate", str(script), "-o", str(tmp_path / "b"), "--json"]) == 0
+    json.loads(capsys.readouterr().out)  # stdout stays one JSON object
+    assert "rendering [" in tty.getvalue() and "100.0%" in tty.getvalue()
+    quiet = on_a_terminal(monkeypatch)
+    assert main(["simulate", str(script), "-o", str(tmp_path / "c"), "--quiet"]) == 0
+    assert "rendering" not in quiet.getvalue()
