@@ -357,25 +357,33 @@ def test_track_force_ended_by_any_signal_while_writing_puts_the_old_run_back(tmp
 
 
 @pytest.mark.slow
-def test_a_run_folder_being_written_is_refused_to_a_second_command(tmp_path, long_recording, monkeypatch):
+def test_a_run_folder_being_written_is_refused_to_a_second_command(tmp_path, monkeypatch):
     # two `track --force` into one folder at once: the second is refused in one line and the
     # folder ends with one consistent run (run.json and log.csv of the same recording)
     from concurrent.futures import ThreadPoolExecutor
 
     env = _quiet_config(monkeypatch, tmp_path)
+    # long enough (240 000 frames, several seconds even on two threads) that the others are tried
+    # while it runs: each of them spends most of a second just starting Python
+    long_recording = wav16(tmp_path / "long.wav", tone(120.0))
     other = wav16(tmp_path / "other.wav", tone(2.0, freq_hz=1500.0))
     run = tmp_path / "run"
     _old_run(run)
     first = _popen("track", long_recording, "-o", run, "--force", "--quiet", "--hop-ms", "0.5",
                    stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
-    _wait_for(lambda: _locked_by(run, first.pid), first, what="the first track")  # it is tracking now
-    with ThreadPoolExecutor(2) as pool:
-        second = pool.submit(cli, "track", other, "-o", run, "--force", "--quiet")
-        capture = pool.submit(cli, "capture", "-o", run, "--force", "--synthetic", "1000", "--rate", "8000",
-                              "--seconds", "1", "--no-view", env=env)
-        second, capture = second.result(), capture.result()
-    assert first.poll() is None, "the first track ended before the others tried: the test proves nothing"
-    _, err = first.communicate(timeout=60)
+    try:
+        _wait_for(lambda: _locked_by(run, first.pid), first, what="the first track")  # it is tracking now
+        with ThreadPoolExecutor(2) as pool:
+            second = pool.submit(cli, "track", other, "-o", run, "--force", "--quiet")
+            capture = pool.submit(cli, "capture", "-o", run, "--force", "--synthetic", "1000", "--rate", "8000",
+                                  "--seconds", "1", "--no-view", env=env)
+            second, capture = second.result(), capture.result()
+        assert first.poll() is None, "the first track ended before the others tried: the test proves nothing"
+        _, err = first.communicate(timeout=120)
+    finally:
+        if first.poll() is None:
+            first.kill()
+        first.communicate()  # and its stderr pipe is closed whatever happened
     assert first.returncode == 0, err
     for res in (second, capture):
         line = one_line_error(res)
