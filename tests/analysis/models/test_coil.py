@@ -390,3 +390,21 @@ def test_skin_depth_note_only_when_the_wire_is_thicker_than_two_skin_depths():
     assert fast.skin_depth_mm == pytest.approx(skin_mm(fast.lc_freq_hz), rel=3e-3)
     assert any("skin depth" in n for n in fast.notes)
     assert not any("skin depth" in n for n in slow.notes)
+
+
+@pytest.mark.parametrize("thick_mm, wheeler_kept", [(0.05, True), (1.0, False)])
+def test_flat_spiral_of_real_thickness_is_held_to_two_percent(thick_mm, wheeler_kept):
+    # 50 turns, c = 20 mm on a 40 mm former: c/r = 0.67, inside Wheeler's flat-spiral range, but the
+    # formula is for no thickness. Reference: the simulator's own quadrature of Maxwell's mutual
+    # inductance over the section (coilshift.sim.inductance, a code path apart from the analysis).
+    # Wheeler is 1.6 % high at 0.05 mm (kept: within its 2 %) and 4.1 % high at 1 mm (replaced).
+    from coilshift.sim.inductance import winding_inductance_h
+
+    rep = analyse_coil(CoilDesign(50, 40, thick_mm, depth_mm=20, cap_nf=100))
+    truth_uh = winding_inductance_h(50, 0.020, 0.040, thick_mm * 1e-3) * 1e6
+    assert rep.inductance_uh == pytest.approx(truth_uh, rel=0.02)
+    assert ("Wheeler" in rep.method) == wheeler_kept
+    if not wheeler_kept:
+        assert rep.inductance_uh == pytest.approx(truth_uh, rel=1e-3)  # the filament sum itself
+        assert "more than its 2 %" in rep.accuracy_note and not rep.in_stated_range
+        assert rep.wheeler_uh / truth_uh - 1 > 0.03
