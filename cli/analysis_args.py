@@ -27,6 +27,25 @@ def analysis_kwargs(args) -> dict:
             "placement_mm": args.placement_mm}
 
 
+def analyse_and_report(label: str, paths, markers, kwargs: dict, outputs, quiet: bool = False) -> list:
+    """Analyse each run (``analyse_run`` with ``kwargs``), write ``outputs.out`` when asked and print
+    the results, a stage line on stderr meanwhile (a terminal only) cleared before the printing."""
+    from pathlib import Path
+
+    from coilshift.analysis.calibration.run import analyse_run
+    from coilshift.logger.progress import make_stages
+
+    n = len(paths)
+    results = []
+    with make_stages(label, quiet=quiet) as stage:
+        for i, path in enumerate(paths, 1):
+            where = f"run {i} of {n} ({Path(path).name})" if n > 1 else Path(path).name
+            results.append(analyse_run(path, markers, progress=lambda text, w=where: stage(f"{w}: {text}"), **kwargs))
+        write_results(results, outputs, progress=stage)
+    print_results(results, outputs)
+    return results
+
+
 def write_results(results, args, progress=None) -> None:
     """Write the output folder ``args.out`` (built aside, swapped in whole) when asked;
     ``progress`` (a stage line) hears what is being written."""

@@ -25,23 +25,10 @@ def register(subparsers) -> None:
 
 
 def run(args) -> int:
-    from pathlib import Path
-
-    from coilshift.analysis.calibration.run import analyse_run
-    from coilshift.cli.analysis_args import analysis_kwargs, print_results, write_results
+    from coilshift.cli.analysis_args import analyse_and_report, analysis_kwargs
     from coilshift.logger.errors import InputError
-    from coilshift.logger.progress import make_stages
 
     if args.markers and len(args.runs) > 1:
         raise InputError(f"{args.markers}: --markers applies to one run; give each run its own markers.csv")
-    kwargs = analysis_kwargs(args)
-    n = len(args.runs)
-    results = []
-    with make_stages("analyze", quiet=args.quiet) as stage:  # stderr, on a terminal only
-        for i, path in enumerate(args.runs, 1):
-            where = f"run {i} of {n} ({Path(path).name})" if n > 1 else Path(path).name
-            results.append(analyse_run(path, args.markers, progress=lambda text, w=where: stage(f"{w}: {text}"),
-                                       **kwargs))
-        write_results(results, args, progress=stage)
-    print_results(results, args)
+    analyse_and_report("analyze", args.runs, args.markers, analysis_kwargs(args), args, quiet=args.quiet)
     return 0

@@ -189,13 +189,8 @@ def run(args) -> int:
 
 def _analyse_session(run_dir, kwargs: dict, args) -> None:
     """Analyse the recorded session, write its outputs, print the results (a stage line meanwhile)."""
-    from coilshift.analysis.calibration.run import analyse_run
-    from coilshift.cli.analysis_args import print_results, write_results
-    from coilshift.logger.progress import make_stages
+    from coilshift.cli.analysis_args import analyse_and_report
 
+    # run.json has the "calibration" entry: the analysis knows the stretches start settled
     outputs = argparse.Namespace(out=args.analysis_out, force=args.force, json=args.json)
-    with make_stages("calibrate") as stage:  # stderr, on a terminal only; cleared before the results
-        # run.json has the "calibration" entry: the analysis knows the stretches start settled
-        res = analyse_run(run_dir, progress=stage, **kwargs)
-        write_results([res], outputs, progress=stage)
-    print_results([res], outputs)
+    analyse_and_report("calibrate", [run_dir], None, kwargs, outputs)
